@@ -1,0 +1,70 @@
+package model
+
+// Conv is one convolution of a given width.
+type Conv struct {
+	Width int
+	// W holds the filters in PyTorch's Conv1d layout [F][d][Width]:
+	// W[(f*d+j)*Width+k] is filter f's weight for embedding component j at
+	// tap k (the k-th word of the window).
+	W []float32
+	B []float32 // [F]
+}
+
+// Dense is a fully connected layer y = W x + B.
+type Dense struct {
+	In, Out int
+	W       []float32 // [Out][In], row-major, as torch.nn.Linear.weight
+	B       []float32 // [Out]
+}
+
+// FoldTable is one width's folded convolution: for every embedding row r,
+// tap k and filter f, the dot product of row r with filter f's weights at
+// tap k. Exactly one of F32 and F16 is set, laid out [rows][Width][F].
+type FoldTable struct {
+	Width int
+	F32   []float32
+	F16   []uint16 // IEEE 754 half precision bits
+}
+
+// Model is a trained (or randomly initialised) network with its vocabulary,
+// tokenizer settings and labels. It is read-only after construction and safe
+// for concurrent use; every slice may alias a memory-mapped file and must not
+// be written. Close releases the mapping; no Predictor may be used after it.
+type Model struct {
+	Config    Config
+	Tokenizer TokenizerSettings
+	Labels    []string
+
+	// Emb is the embedding matrix [Rows()][Dim]: row 0 is padding (all
+	// zero), rows 1..V the vocabulary words in order, rows V+1..V+B the
+	// shared buckets for unknown words.
+	Emb    []float32
+	Convs  []Conv // one per width, in Config.Widths order
+	Hidden *Dense // nil when Config.Hidden == 0; ReLU follows it
+	Out    Dense  // to len(Labels) logits
+
+	// Fold holds the folded tables, one per width, or is nil.
+	Fold []FoldTable
+
+	Vocab *Vocab
+
+	// Meta is the file's __metadata__, including the keys this package
+	// writes itself (see the Meta* constants).
+	Meta map[string]string
+
+	closer func() error
+	tok    *Tokenizer
+}
+
+// Rows is the number of embedding rows: padding, vocabulary and buckets.
+func (m *Model) Rows() int { return 1 + m.Vocab.Len() + m.Config.Buckets }
+
+// Close releases the model's file mapping, if any.
+func (m *Model) Close() error {
+	if m.closer == nil {
+		return nil
+	}
+	c := m.closer
+	m.closer = nil
+	return c()
+}

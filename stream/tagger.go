@@ -1,0 +1,18 @@
+package stream
+
+// Tagger is the classifier the pipeline runs. It is shared by all workers
+// and must be safe for concurrent use; each worker makes its own Scorer.
+type Tagger interface {
+	// Labels are the tag names, in the order Score reports them.
+	Labels() []string
+	// NewScorer returns per-worker scratch for scoring. It is used by one
+	// goroutine at a time.
+	NewScorer() Scorer
+}
+
+// Scorer scores one text at a time.
+type Scorer interface {
+	// Score returns one probability per label for text. The slice is owned
+	// by the Scorer and valid until the next call.
+	Score(text []byte) []float32
+}
