@@ -1,0 +1,16 @@
+package main
+
+import "github.com/spf13/cobra"
+
+// Commands that later work builds. Each says so and exits non-zero.
+func init() {
+	for _, c := range []struct{ name, short string }{
+		{"train", "Train a model from labelled records"},
+		{"eval", "Evaluate a model on labelled records"},
+		{"embed", "Learn word vectors from unlabelled text"},
+	} {
+		commands = append(commands, func(*app) *cobra.Command {
+			return &cobra.Command{Use: c.name, Short: c.short + " (not yet built)", RunE: notYet(c.name)}
+		})
+	}
+}
