@@ -1,0 +1,483 @@
+package model
+
+import (
+	"errors"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"runtime"
+
+	"sync"
+	"time"
+)
+
+// Training defaults. Batch size 50, dropout 0.5 on the pooled features,
+// max-norm 3 on the output weight rows, Adadelta with rho 0.95 and epsilon
+// 1e-6, and 25 epochs are the settings of Kim (2014), "Convolutional Neural
+// Networks for Sentence Classification", EMNLP, section 3.1 and his
+// published training code. The patience is common practice, not from the
+// paper (which trains a fixed number of epochs and keeps the best on dev).
+const (
+	DefaultEpochs   = 25
+	DefaultPatience = 5
+	DefaultBatch    = 50
+	DefaultDropout  = 0.5
+	DefaultMaxNorm  = 3
+	AdadeltaRho     = 0.95
+	AdadeltaEps     = 1e-6
+	// AdamLearningRate, AdamBeta1, AdamBeta2 and AdamEps are the defaults of
+	// Kingma and Ba (2015), "Adam: A Method for Stochastic Optimization",
+	// which PyTorch's torch.optim.Adam also uses.
+	AdamLearningRate = 1e-3
+	AdamBeta1        = 0.9
+	AdamBeta2        = 0.999
+	AdamEps          = 1e-8
+)
+
+// Optimizer names.
+const (
+	OptAdadelta = "adadelta"
+	OptAdam     = "adam"
+)
+
+// Example is one training or dev record: its embedding rows (as
+// Vocab.Row gives them; an empty list stands for one padding token) and the
+// index of its label in Model.Labels.
+type Example struct {
+	Rows  []int32 `json:"rows"`
+	Label int     `json:"label"`
+}
+
+// TrainOptions control Train. The zero value of a field means its default.
+type TrainOptions struct {
+	Epochs   int     // most epochs; 0 means DefaultEpochs
+	Patience int     // stop after this many epochs without a better dev accuracy; 0 means DefaultPatience, <0 never
+	Batch    int     // mini-batch size; 0 means DefaultBatch
+	Seed     uint64  // shuffling and dropout
+	Jobs     int     // trainWorker goroutines; 0 means GOMAXPROCS
+	Opt      string  // OptAdadelta (default) or OptAdam
+	LR       float64 // learning rate; 0 means 1 for Adadelta, AdamLearningRate for Adam
+	// Dropout is the probability of zeroing a pooled feature in training; 0
+	// means DefaultDropout, a negative value none.
+	Dropout float64
+	// MaxNorm caps the L2 norm of each output weight row after every
+	// update; 0 means DefaultMaxNorm, a negative value no cap.
+	MaxNorm float64
+	// ClassWeights weight each label's loss (len(Labels) values); nil means
+	// all 1. BalancedWeights computes the usual "balanced" weights.
+	ClassWeights []float64
+	// Frozen marks embedding rows that are never updated (for example rows
+	// taken from a word-vector file); nil means none. Row 0 (padding) is
+	// never updated in any case.
+	Frozen []bool
+
+	// OnEpoch, if set, is called after every epoch with its figures.
+	OnEpoch func(EpochStats)
+	// OnBatch, if set, is called after every mini-batch with the number of
+	// training examples done in this epoch and the total.
+	OnBatch func(done, total int)
+}
+
+// EpochStats are one epoch's figures.
+type EpochStats struct {
+	Epoch      int     `json:"epoch"` // from 1
+	Loss       float64 `json:"loss"`  // mean weighted training loss, with dropout
+	TrainAcc   float64 `json:"train_accuracy"`
+	DevAcc     float64 `json:"dev_accuracy"`
+	DevMacroF1 float64 `json:"dev_macro_f1"`
+	Tokens     int     `json:"tokens"` // training tokens (windows) seen
+	Seconds    float64 `json:"seconds"`
+}
+
+// TrainResult sums up a run of Train.
+type TrainResult struct {
+	Curve      []EpochStats `json:"curve"`
+	BestEpoch  int          `json:"best_epoch"`
+	EpochsRun  int          `json:"epochs_run"`
+	DevAcc     float64      `json:"dev_accuracy"`
+	DevMacroF1 float64      `json:"dev_macro_f1"`
+	Seconds    float64      `json:"seconds"`
+}
+
+// Errors of Train.
+var (
+	ErrNoExamples = errors.New("model: no training examples")
+	ErrBadLabel   = errors.New("model: example label out of range")
+	ErrBadRow     = errors.New("model: example row out of range")
+)
+
+// BalancedWeights returns per-label loss weights n / (C * n_c) for n
+// examples over the C labels that occur, n_c of label c (the "balanced" heuristic of
+// scikit-learn's compute_class_weight, common practice for skewed tags). A
+// label without examples gets weight 0.
+func BalancedWeights(train []Example, labels int) []float64 {
+	counts := make([]int, labels)
+	for _, e := range train {
+		if e.Label >= 0 && e.Label < labels {
+			counts[e.Label]++
+		}
+	}
+	present := 0
+	for _, n := range counts {
+		if n > 0 {
+			present++
+		}
+	}
+	w := make([]float64, labels)
+	for c, n := range counts {
+		if n > 0 {
+			w[c] = float64(len(train)) / float64(present*n)
+		}
+	}
+	return w
+}
+
+func (o *TrainOptions) defaults() {
+	if o.Epochs <= 0 {
+		o.Epochs = DefaultEpochs
+	}
+	if o.Patience == 0 {
+		o.Patience = DefaultPatience
+	}
+	if o.Batch <= 0 {
+		o.Batch = DefaultBatch
+	}
+	if o.Jobs <= 0 {
+		o.Jobs = runtime.GOMAXPROCS(0)
+	}
+	if o.Opt == "" {
+		o.Opt = OptAdadelta
+	}
+	if o.LR <= 0 {
+		o.LR = 1
+		if o.Opt == OptAdam {
+			o.LR = AdamLearningRate
+		}
+	}
+	if o.Dropout == 0 {
+		o.Dropout = DefaultDropout
+	}
+	if o.MaxNorm == 0 {
+		o.MaxNorm = DefaultMaxNorm
+	}
+}
+
+// Train fits m's weights to train by mini-batch back-propagation and keeps
+// the weights of the epoch with the best accuracy on dev (with an empty dev
+// set, the last epoch's). m must have its own writable weights (as New
+// returns) and no folded table; Train writes them in place and is not safe
+// to run concurrently with any other use of m. The same m, data, options
+// and Jobs give bit-identical weights.
+func Train(m *Model, train, dev []Example, opt TrainOptions) (*TrainResult, error) {
+	opt.defaults()
+	if len(train) == 0 {
+		return nil, ErrNoExamples
+	}
+	if opt.Opt != OptAdadelta && opt.Opt != OptAdam {
+		return nil, fmt.Errorf("model: unknown optimizer %q (want %s or %s)", opt.Opt, OptAdadelta, OptAdam)
+	}
+	if opt.ClassWeights != nil && len(opt.ClassWeights) != len(m.Labels) {
+		return nil, fmt.Errorf("model: %d class weights for %d labels", len(opt.ClassWeights), len(m.Labels))
+	}
+	if err := checkTrainExamples(m, train); err != nil {
+		return nil, err
+	}
+	if err := checkTrainExamples(m, dev); err != nil {
+		return nil, err
+	}
+	m.Fold = nil
+	t := newTrainer(m, opt)
+	defer t.stop()
+	res := &TrainResult{}
+	start := time.Now()
+	order := make([]int, len(train))
+	bestAcc := -1.0
+	var best *netParams
+	since := 0
+	for epoch := 1; epoch <= opt.Epochs; epoch++ {
+		es := t.epoch(epoch, train, order)
+		if len(dev) > 0 {
+			es.DevAcc, es.DevMacroF1 = t.evaluate(dev)
+		}
+		es.Seconds = time.Since(start).Seconds()
+		res.Curve = append(res.Curve, es)
+		res.EpochsRun = epoch
+		if len(dev) == 0 || es.DevAcc > bestAcc {
+			bestAcc = es.DevAcc
+			res.BestEpoch, res.DevAcc, res.DevMacroF1 = epoch, es.DevAcc, es.DevMacroF1
+			best = t.p.snapshot(best)
+			since = 0
+		} else {
+			since++
+		}
+		if opt.OnEpoch != nil {
+			opt.OnEpoch(es)
+		}
+		if opt.Patience > 0 && since >= opt.Patience {
+			break
+		}
+	}
+	best.writeTo(m)
+	res.Seconds = time.Since(start).Seconds()
+	return res, nil
+}
+
+func checkTrainExamples(m *Model, ex []Example) error {
+	rows := int32(m.Rows())
+	for i, e := range ex {
+		if e.Label < 0 || e.Label >= len(m.Labels) {
+			return fmt.Errorf("example %d: %w: %d", i, ErrBadLabel, e.Label)
+		}
+		for _, r := range e.Rows {
+			if r < 0 || r >= rows {
+				return fmt.Errorf("example %d: %w: %d", i, ErrBadRow, r)
+			}
+		}
+	}
+	return nil
+}
+
+// trainer holds the working parameters, the optimiser state and the
+// workers' scratch for one run of Train.
+type trainer struct {
+	m    *Model
+	opt  TrainOptions
+	p    *netParams
+	g    *netGrads // the batch's summed gradient
+	ws   []*trainWorker
+	st   optState
+	cw   []float32
+	step int
+
+	jobs chan func()
+	wg   sync.WaitGroup
+}
+
+func newTrainer(m *Model, opt TrainOptions) *trainer {
+	t := &trainer{m: m, opt: opt, p: paramsFrom(m)}
+	t.g = newGrads(t.p)
+	t.cw = make([]float32, len(m.Labels))
+	for c := range t.cw {
+		t.cw[c] = 1
+		if opt.ClassWeights != nil {
+			t.cw[c] = float32(opt.ClassWeights[c])
+		}
+	}
+	t.st = newOptState(t.p, opt.Opt)
+	for range opt.Jobs {
+		t.ws = append(t.ws, newTrainWorker(t.p))
+	}
+	t.jobs = make(chan func())
+	for range opt.Jobs {
+		go func() {
+			for f := range t.jobs {
+				f()
+				t.wg.Done()
+			}
+		}()
+	}
+	return t
+}
+
+func (t *trainer) stop() { close(t.jobs) }
+
+// parallel runs f(k) for k < n on the trainWorker goroutines and waits.
+func (t *trainer) parallel(n int, f func(k int)) {
+	t.wg.Add(n)
+	for k := range n {
+		t.jobs <- func() { f(k) }
+	}
+	t.wg.Wait()
+}
+
+// epoch runs one pass over train in a seeded random order.
+func (t *trainer) epoch(epoch int, train []Example, order []int) EpochStats {
+	for i := range order {
+		order[i] = i
+	}
+	rng := rand.New(rand.NewPCG(t.opt.Seed, uint64(epoch)))
+	rng.Shuffle(len(order), func(i, j int) { order[i], order[j] = order[j], order[i] })
+	var loss, wsum float64
+	correct, tokens := 0, 0
+	start := time.Now()
+	for b := 0; b < len(order); b += t.opt.Batch {
+		batch := order[b:min(b+t.opt.Batch, len(order))]
+		var bw float64
+		for _, i := range batch {
+			bw += float64(t.cw[train[i].Label])
+		}
+		if bw == 0 {
+			continue
+		}
+		scale := float32(1 / bw)
+		t.p.pack()
+		nw := min(len(t.ws), len(batch))
+		t.parallel(nw, func(k int) {
+			w := t.ws[k]
+			w.reset()
+			lo, hi := k*len(batch)/nw, (k+1)*len(batch)/nw
+			for _, i := range batch[lo:hi] {
+				e := &train[i]
+				seed := uint64(epoch)<<40 ^ uint64(i)
+				w.example(t.p, e, t.cw[e.Label], scale, t.opt.Dropout, t.opt.Seed, seed)
+			}
+		})
+		t.reduce(nw)
+		t.step++
+		t.update()
+		for _, w := range t.ws[:nw] {
+			loss += w.loss
+			correct += w.correct
+			tokens += w.tokens
+		}
+		wsum += bw
+		if t.opt.OnBatch != nil {
+			t.opt.OnBatch(b+len(batch), len(order))
+		}
+	}
+	return EpochStats{Epoch: epoch, Loss: loss / wsum, TrainAcc: float64(correct) / float64(len(train)), Tokens: tokens, Seconds: time.Since(start).Seconds()}
+}
+
+// reduce sums the first n workers' gradients into t.g, in trainWorker order for
+// every element, so the result does not depend on scheduling.
+func (t *trainer) reduce(n int) {
+	g := t.g
+	g.resetSparse()
+	dense := g.trDense()
+	// Dense tensors: split the element range across goroutines; each
+	// element is still summed in trainWorker order.
+	parts := len(t.ws)
+	t.parallel(parts, func(k int) {
+		for ti, dst := range dense {
+			lo, hi := k*len(dst)/parts, (k+1)*len(dst)/parts
+			copy(dst[lo:hi], t.ws[0].g.trDense()[ti][lo:hi])
+			for _, w := range t.ws[1:n] {
+				trAdd(dst[lo:hi], w.g.trDense()[ti][lo:hi])
+			}
+		}
+	})
+	d := t.p.d
+	for _, w := range t.ws[:n] {
+		for si, r := range w.g.rows {
+			src := w.g.embRow(si, d)
+			trAdd(g.touch(r, d), src)
+		}
+	}
+}
+
+// evaluate returns accuracy and macro-F1 on ex with the current weights,
+// without dropout.
+func (t *trainer) evaluate(ex []Example) (acc, macroF1 float64) {
+	t.p.pack()
+	pred := make([]int, len(ex))
+	nw := min(len(t.ws), len(ex))
+	t.parallel(nw, func(k int) {
+		w := t.ws[k]
+		for i := k * len(ex) / nw; i < (k+1)*len(ex)/nw; i++ {
+			pred[i] = trArgmax(w.forward(t.p, ex[i].Rows, -1, 0, 0))
+		}
+	})
+	gold := make([]int, len(ex))
+	for i, e := range ex {
+		gold[i] = e.Label
+	}
+	return Accuracy(gold, pred), MacroF1(gold, pred, len(t.m.Labels))
+}
+
+// Accuracy is the fraction of pred equal to gold.
+func Accuracy(gold, pred []int) float64 {
+	if len(gold) == 0 {
+		return 0
+	}
+	n := 0
+	for i := range gold {
+		if gold[i] == pred[i] {
+			n++
+		}
+	}
+	return float64(n) / float64(len(gold))
+}
+
+// MacroF1 is the unweighted mean over the labels that occur in gold or pred
+// of each label's F1 = 2 TP / (2 TP + FP + FN).
+func MacroF1(gold, pred []int, labels int) float64 {
+	tp, fp, fn := make([]int, labels), make([]int, labels), make([]int, labels)
+	for i := range gold {
+		if gold[i] == pred[i] {
+			tp[gold[i]]++
+		} else {
+			fn[gold[i]]++
+			fp[pred[i]]++
+		}
+	}
+	var sum float64
+	n := 0
+	for c := range labels {
+		if tp[c]+fp[c]+fn[c] == 0 {
+			continue
+		}
+		sum += 2 * float64(tp[c]) / float64(2*tp[c]+fp[c]+fn[c])
+		n++
+	}
+	if n == 0 {
+		return 0
+	}
+	return sum / float64(n)
+}
+
+func trArgmax(x []float32) int {
+	best := 0
+	for i, v := range x {
+		if v > x[best] {
+			best = i
+		}
+	}
+	return best
+}
+
+// update applies the optimiser to the summed gradient, then the max-norm
+// cap on the output rows.
+func (t *trainer) update() {
+	p, g, st := t.p, t.g, &t.st
+	lr := float32(t.opt.LR)
+	dense, gd := p.trDense(), g.trDense()
+	t.parallel(len(t.ws), func(k int) {
+		for i := range dense {
+			lo, hi := k*len(dense[i])/len(t.ws), (k+1)*len(dense[i])/len(t.ws)
+			st.step(t.opt.Opt, t.step, lr, dense[i][lo:hi], gd[i][lo:hi], st.a[i][lo:hi], st.b[i][lo:hi])
+		}
+	})
+	d := p.d
+	for si, r := range g.rows {
+		if r == 0 || (t.opt.Frozen != nil && int(r) < len(t.opt.Frozen) && t.opt.Frozen[r]) {
+			continue
+		}
+		o := int(r) * d
+		st.embStep(t.opt.Opt, t.step, lr, p.emb[o:o+d], g.embRow(si, d), st.embA[o:o+d], st.embB[o:o+d])
+	}
+	if t.opt.MaxNorm > 0 {
+		trMaxNorm(p.outW, p.outIn, float32(t.opt.MaxNorm))
+	}
+}
+
+// trMaxNorm rescales every row of w (rows of length in) whose L2 norm exceeds
+// s to norm s.
+func trMaxNorm(w []float32, in int, s float32) {
+	for o := 0; o < len(w); o += in {
+		row := w[o : o+in]
+		var ss float64
+		for _, v := range row {
+			ss += float64(v) * float64(v)
+		}
+		if n := math.Sqrt(ss); n > float64(s) {
+			f := float32(float64(s) / n)
+			for i := range row {
+				row[i] *= f
+			}
+		}
+	}
+}
+
+func trAdd(dst, src []float32) {
+	trAxpy(1, src, dst)
+}

@@ -1,0 +1,9 @@
+//go:build !amd64
+
+package model
+
+func trConv(a []float32, lda int, b []float32, k int, c []float32, ldc int) {
+	trConvGo(a, lda, b, k, c, ldc)
+}
+
+func trAxpy(alpha float32, x, y []float32) { trAxpyGo(alpha, x, y) }
