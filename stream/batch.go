@@ -1,0 +1,307 @@
+package stream
+
+import (
+	"bytes"
+	"time"
+)
+
+// counts are one block's record counts; the writer adds them up in order.
+type counts struct {
+	records, written, dropped, malformed, notString, tooLong, noText,
+	blank, crlf, invalidUTF8, passed, rejected int64
+}
+
+func (c *counts) add(o *counts) {
+	c.records += o.records
+	c.written += o.written
+	c.dropped += o.dropped
+	c.malformed += o.malformed
+	c.notString += o.notString
+	c.tooLong += o.tooLong
+	c.noText += o.noText
+	c.blank += o.blank
+	c.crlf += o.crlf
+	c.invalidUTF8 += o.invalidUTF8
+	c.passed += o.passed
+	c.rejected += o.rejected
+}
+
+// lineErr is a problem with the block's line number line (from 0).
+type lineErr struct {
+	line int64
+	err  error
+}
+
+// block is the unit of work: whole lines of one input, or one piece of an
+// overlong line, with a sequence number. A block is owned by one stage at a
+// time (cutter, worker, writer); the free list holds the rest, and its size
+// is the window of blocks in flight.
+type block struct {
+	seq    uint64
+	file   int
+	in     []byte
+	lastNL int // offset of the last '\n' in in, or -1 (cutter only)
+
+	// raw marks a piece of a line longer than MaxLine: written untouched.
+	// rawFirst is its first piece, rawEnd its last (ending in '\n').
+	raw, rawFirst, rawEnd bool
+
+	tagger *taggerState
+	reopen bool  // reopen the output file before writing this block
+	err    error // input error, reported after the block's lines
+
+	// Filled in by the worker.
+	out, rej []byte
+	lines    int64
+	n        counts
+	tags     []int64 // per label, then unsure
+	errs     []lineErr
+}
+
+func (b *block) reset() {
+	b.in = b.in[:0]
+	if cap(b.in) > maxKeepCap {
+		b.in = nil
+	}
+	if cap(b.out) > maxKeepCap {
+		b.out = nil
+	}
+	if cap(b.rej) > maxKeepCap {
+		b.rej = nil
+	}
+	*b = block{in: b.in, out: b.out[:0], rej: b.rej[:0], tags: b.tags[:0], errs: b.errs[:0], lastNL: -1}
+}
+
+// cutter turns chunks into blocks: about BlockSize bytes each, cut after
+// the last newline, never spanning two inputs. When the input pauses for
+// cfg.pause, the whole lines read so far go out as a smaller block, so a
+// live stream is answered at once.
+type cutter struct {
+	cfg       *config
+	chunks    <-chan chunk
+	chunkPool chan []byte
+	free      chan *block
+	work      chan<- *block
+	stop      <-chan struct{} // caller's cancellation: stop cutting
+	abort     <-chan struct{} // fatal error downstream
+
+	seq     uint64
+	gen     uint64
+	tagger  *taggerState
+	set     *Tagger // the Switch's value behind tagger, if any
+	stopped bool    // ended by stop or abort, not by the end of input
+}
+
+func (c *cutter) take() *block {
+	select {
+	case b := <-c.free:
+		return b
+	case <-c.stop:
+	case <-c.abort:
+	}
+	c.stopped = true
+	return nil
+}
+
+// send stamps b with its sequence number and tagger and hands it on.
+func (c *cutter) send(b *block) bool {
+	b.seq = c.seq
+	c.seq++
+	if sw := c.cfg.sw; sw != nil {
+		if g := sw.gen.Load(); g != c.gen {
+			c.gen = g
+			b.reopen = true
+			if t := sw.tagger.Load(); t != nil && t != c.set {
+				c.set = t
+				c.tagger = newTaggerState(*t, c.cfg)
+			}
+		}
+	}
+	b.tagger = c.tagger
+	select {
+	case c.work <- b:
+		return true
+	case <-c.abort:
+		c.stopped = true
+		return false
+	}
+}
+
+// ship sends cur[:k] and returns a new block holding the rest of cur.
+func (c *cutter) ship(cur *block, k int) *block {
+	next := c.take()
+	if next == nil {
+		return nil
+	}
+	next.file = cur.file
+	next.in = append(next.in, cur.in[k:]...)
+	next.lastNL = -1
+	cur.in = cur.in[:k]
+	if !c.send(cur) {
+		return nil
+	}
+	return next
+}
+
+// run cuts until the input ends or stop or abort, then closes work.
+func (c *cutter) run() {
+	defer close(c.work)
+	cur := c.take()
+	if cur == nil {
+		return
+	}
+	long := false // inside a line longer than MaxLine
+	timer := time.NewTimer(time.Hour)
+	timer.Stop()
+	for {
+		var ch chunk
+		var ok bool
+		select {
+		case ch, ok = <-c.chunks:
+		default:
+			if cur.lastNL >= 0 {
+				timer.Reset(c.cfg.pause)
+				select {
+				case ch, ok = <-c.chunks:
+					timer.Stop()
+				case <-timer.C:
+					if cur = c.ship(cur, cur.lastNL+1); cur == nil {
+						return
+					}
+					continue
+				case <-c.stop:
+					c.stopped = true
+					return
+				case <-c.abort:
+					c.stopped = true
+					return
+				}
+			} else {
+				select {
+				case ch, ok = <-c.chunks:
+				case <-c.stop:
+					c.stopped = true
+					return
+				case <-c.abort:
+					c.stopped = true
+					return
+				}
+			}
+		}
+		if !ok {
+			if len(cur.in) > 0 || long { // cannot happen: inputs end with eof chunks
+				cur.in = cur.in[:0]
+			}
+			return
+		}
+		select {
+		case <-c.stop:
+			c.stopped = true
+			return
+		default:
+		}
+		cur.file = ch.file
+		if ch.buf != nil {
+			cur, long = c.add(cur, ch.buf, long)
+			c.chunkPool <- ch.buf[:0]
+			if cur == nil {
+				return
+			}
+		}
+		if ch.eof {
+			if cur, long = c.endInput(cur, ch, long); cur == nil {
+				return
+			}
+		}
+	}
+}
+
+// add appends data to cur, sending blocks as they fill.
+func (c *cutter) add(cur *block, data []byte, long bool) (*block, bool) {
+	for len(data) > 0 {
+		if long {
+			piece := data
+			nl := bytes.IndexByte(data, '\n')
+			if nl >= 0 {
+				piece, long = data[:nl+1], false
+			}
+			if !c.sendRaw(cur.file, piece, false, nl >= 0) {
+				return nil, false
+			}
+			data = data[len(piece):]
+			continue
+		}
+		n := len(cur.in)
+		cur.in = append(cur.in, data...)
+		if k := bytes.LastIndexByte(data, '\n'); k >= 0 {
+			cur.lastNL = n + k
+		}
+		data = nil
+		for len(cur.in) >= c.cfg.blockSize {
+			if cur.lastNL >= 0 {
+				if cur = c.ship(cur, cur.lastNL+1); cur == nil {
+					return nil, false
+				}
+				continue
+			}
+			if len(cur.in) <= c.cfg.maxLine {
+				break // a long line: let the block grow
+			}
+			// One line past MaxLine: pass it through in pieces.
+			cur.raw, cur.rawFirst = true, true
+			next := c.take()
+			if next == nil || !c.send(cur) {
+				return nil, false
+			}
+			next.file = cur.file
+			cur, long = next, true
+		}
+	}
+	return cur, long
+}
+
+// sendRaw sends a piece of an overlong line in a block of its own.
+func (c *cutter) sendRaw(file int, piece []byte, first, end bool) bool {
+	b := c.take()
+	if b == nil {
+		return false
+	}
+	b.file = file
+	b.in = append(b.in, piece...)
+	b.raw, b.rawFirst, b.rawEnd = true, first, end
+	return c.send(b)
+}
+
+// endInput finishes an input: its last line gets a '\n' if it has none, so
+// the next input starts a new record; a failed input keeps only its whole
+// lines and carries the error in an empty block after them.
+func (c *cutter) endInput(cur *block, ch chunk, long bool) (*block, bool) {
+	if long {
+		if !c.sendRaw(cur.file, []byte{'\n'}, false, true) {
+			return nil, false
+		}
+	}
+	if ch.err != nil {
+		cur.in = cur.in[:cur.lastNL+1]
+	} else if len(cur.in) > 0 && cur.in[len(cur.in)-1] != '\n' {
+		cur.in = append(cur.in, '\n')
+		cur.lastNL = len(cur.in) - 1
+	}
+	if len(cur.in) > 0 {
+		if cur = c.ship(cur, len(cur.in)); cur == nil {
+			return nil, false
+		}
+	}
+	if ch.err != nil {
+		next := c.take()
+		if next == nil {
+			return nil, false
+		}
+		cur.file, cur.err = ch.file, ch.err
+		if !c.send(cur) {
+			return nil, false
+		}
+		cur = next
+	}
+	return cur, false
+}

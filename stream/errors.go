@@ -1,0 +1,51 @@
+package stream
+
+import (
+	"errors"
+	"fmt"
+)
+
+// Sentinel errors. A RecordError's Err unwraps to one of the first four; Run's
+// error unwraps to ErrTruncated when a compressed input ended early.
+var (
+	ErrMalformed = errors.New("stream: malformed JSON")
+	ErrNotString = errors.New("stream: text value is not a string")
+	ErrTooLong   = errors.New("stream: line too long")
+	ErrTruncated = errors.New("stream: truncated or corrupt compressed input")
+	// ErrOutputClosed means the reader of the output went away (EPIPE);
+	// a filter should then end quietly.
+	ErrOutputClosed = errors.New("stream: output closed by its reader")
+)
+
+// RecordError is a problem with one input record. Line counts from 1 within
+// File ("-" for standard input). The record itself was passed through or
+// written to the rejects file, never lost.
+type RecordError struct {
+	File string
+	Line int64
+	Err  error
+}
+
+func (e *RecordError) Error() string {
+	return fmt.Sprintf("%s:%d: %v", e.File, e.Line, e.Err)
+}
+
+func (e *RecordError) Unwrap() error { return e.Err }
+
+// InputError is a problem with one input as a whole: it could not be opened,
+// or it ended early or was corrupt after Line complete lines. Run goes on with
+// the next input and returns the first InputError at the end.
+type InputError struct {
+	File string
+	Line int64 // complete lines read before the problem
+	Err  error
+}
+
+func (e *InputError) Error() string {
+	if e.Line > 0 {
+		return fmt.Sprintf("%s: %v (after line %d; the partial line after it was not written)", e.File, e.Err, e.Line)
+	}
+	return fmt.Sprintf("%s: %v", e.File, e.Err)
+}
+
+func (e *InputError) Unwrap() error { return e.Err }

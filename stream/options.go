@@ -1,0 +1,215 @@
+package stream
+
+import (
+	"fmt"
+	"io"
+	"sync/atomic"
+	"time"
+)
+
+// Format is the kind of input records.
+type Format int
+
+const (
+	// FormatAuto decides per line: a line whose first byte after spaces and
+	// tabs is '{' is a JSON record, any other line is text.
+	FormatAuto Format = iota
+	// FormatJSONL treats every line as a JSON record; a line that is not a
+	// valid JSON object is malformed.
+	FormatJSONL
+	// FormatText treats every line as text, even one that looks like JSON.
+	FormatText
+)
+
+// Emit is how a text line is written.
+type Emit int
+
+const (
+	// EmitTSV writes tag, TAB, confidence, TAB, then the original line.
+	EmitTSV Emit = iota
+	// EmitJSONL writes a JSON object {"text": line, tag key, confidence key, ...}.
+	EmitJSONL
+)
+
+// Compress is the output's compression.
+type Compress int
+
+const (
+	// CompressAuto picks by the output file's suffix: .gz is gzip, .zst is
+	// zstd, anything else (and standard output) is uncompressed.
+	CompressAuto Compress = iota
+	CompressNone
+	CompressGzip
+	CompressZstd
+)
+
+// ParseFormat, ParseEmit and ParseCompress read the names the command line
+// uses.
+func ParseFormat(s string) (Format, error) {
+	switch s {
+	case "auto", "":
+		return FormatAuto, nil
+	case "jsonl":
+		return FormatJSONL, nil
+	case "text":
+		return FormatText, nil
+	}
+	return 0, fmt.Errorf("unknown format %q (want auto, jsonl or text)", s)
+}
+
+// ParseEmit reads "tsv" or "jsonl".
+func ParseEmit(s string) (Emit, error) {
+	switch s {
+	case "tsv", "":
+		return EmitTSV, nil
+	case "jsonl":
+		return EmitJSONL, nil
+	}
+	return 0, fmt.Errorf("unknown emit kind %q (want tsv or jsonl)", s)
+}
+
+// ParseCompress reads "auto", "none", "gzip" or "zstd".
+func ParseCompress(s string) (Compress, error) {
+	switch s {
+	case "auto", "":
+		return CompressAuto, nil
+	case "none":
+		return CompressNone, nil
+	case "gzip":
+		return CompressGzip, nil
+	case "zstd":
+		return CompressZstd, nil
+	}
+	return 0, fmt.Errorf("unknown compression %q (want auto, none, gzip or zstd)", s)
+}
+
+// Limits and defaults, in one place.
+const (
+	// DefaultBlockSize is how much input a worker takes at a time.
+	DefaultBlockSize = 1 << 20
+	// DefaultMaxLine is the longest line that is tagged; a longer one is
+	// passed through untouched (or to the rejects file) and counted.
+	DefaultMaxLine = 64 << 20
+	// DefaultPause is how long the input may be idle before the lines read
+	// so far are tagged and written without waiting for a full block.
+	DefaultPause = 2 * time.Millisecond
+	// blocksPerWorker bounds the blocks in flight (read, being tagged, or
+	// waiting to be written in order): memory stays flat and a slow reader
+	// downstream slows the input down.
+	blocksPerWorker = 3
+	// maxKeepCap is the largest buffer a block keeps for reuse, so one huge
+	// line does not pin its memory for the rest of the run.
+	maxKeepCap = 4 * DefaultBlockSize
+)
+
+// Options control Run. The zero value, with a Tagger, is useful: input kind
+// decided per line, text at key "text", keys "tag" and "confidence" added,
+// text lines written as tag TAB confidence TAB line, every record kept, one
+// worker per core, output uncompressed to the writer given to Run.
+type Options struct {
+	// Tagger classifies texts; required. See also Switch.
+	Tagger Tagger
+	// Switch, if set, lets the caller replace the Tagger while Run runs.
+	Switch *Switch
+
+	Format Format
+	// TextKeys are dotted paths to the text in a JSON record ("text" when
+	// empty). The strings found are joined with one space. A path's value
+	// that is null or absent adds nothing; a number, boolean, array or
+	// object adds nothing and the record counts as NotString. A record
+	// where no path holds a string is passed through untouched.
+	TextKeys []string
+	// TagKey and ConfidenceKey name the added keys ("tag", "confidence").
+	TagKey, ConfidenceKey string
+	// Scores adds an object of every label's probability under ScoresKey
+	// ("scores"); Top > 0 adds the Top best labels, best first, as an
+	// array of {tag, confidence} objects under TopKey ("top"). Both apply
+	// to JSON output only (JSON records, and text lines under EmitJSONL).
+	Scores    bool
+	ScoresKey string
+	Top       int
+	TopKey    string
+	// MinConfidence: a record whose best probability is below it gets
+	// UnsureTag ("unsure") as its tag; its confidence stays the best
+	// probability.
+	MinConfidence float64
+	UnsureTag     string
+	// Keep, when not empty, writes only records whose tag is in it; Drop
+	// leaves out records whose tag is in it. A record passed through
+	// untagged has no tag: Keep leaves it out, Drop keeps it.
+	Keep, Drop []string
+	Emit       Emit
+
+	// Jobs is the number of workers (GOMAXPROCS when 0). With 1 the
+	// pipeline runs sequentially, with the same output.
+	Jobs int
+	// BlockSize is the input block a worker takes (DefaultBlockSize when 0).
+	BlockSize int
+	// MaxLine is the longest line tagged (DefaultMaxLine when 0).
+	MaxLine int
+	// Pause is the idle time after which a partial block is processed
+	// (DefaultPause when 0).
+	Pause time.Duration
+
+	// Output is a file to write instead of Run's writer ("" or "-": the
+	// writer). Compress chooses its compression.
+	Output   string
+	Compress Compress
+	// Rejects, if set, receives the problem records (malformed JSON,
+	// non-string text, overlong lines) instead of the output, unchanged
+	// and in order.
+	Rejects io.Writer
+	// OnError is called, in input order, from one goroutine, with each
+	// *RecordError and *InputError. It may be nil.
+	OnError func(error)
+	// Progress, if set, is called after each block is written with the raw
+	// input bytes read so far (compressed size for compressed input) and
+	// the records written so far.
+	Progress func(bytesRead, records int64)
+}
+
+// Switch lets a caller replace the Tagger of a running pipeline, for example
+// on SIGHUP. Its zero value is ready to use and safe for concurrent use.
+type Switch struct {
+	gen    atomic.Uint64
+	tagger atomic.Pointer[Tagger]
+}
+
+// Set makes t (when not nil) the Tagger for every block cut after Set
+// returns, and asks the pipeline to reopen its output file before writing
+// that block (after everything before it was written and flushed), as log
+// rotation needs. Records are neither lost nor reordered: the switch falls
+// between two blocks. Set(nil) only reopens the output.
+func (s *Switch) Set(t Tagger) {
+	if t != nil {
+		s.tagger.Store(&t)
+	}
+	s.gen.Add(1)
+}
+
+// Stats count what Run did.
+type Stats struct {
+	Records     int64            // lines read, of every kind
+	Written     int64            // records written to the output
+	Tags        map[string]int64 // records tagged, by tag (before Keep/Drop)
+	Dropped     int64            // left out by Keep or Drop
+	Rejected    int64            // problem records: Malformed + NotString + TooLong
+	Malformed   int64            // invalid JSON where JSON was expected
+	NotString   int64            // text path holding a non-string value
+	TooLong     int64            // lines over MaxLine
+	NoText      int64            // JSON records without any text path
+	Blank       int64            // empty or blank lines, passed through
+	CRLF        int64            // records ending in "\r\n"
+	InvalidUTF8 int64            // tagged texts that were not valid UTF-8
+	Passed      int64            // records written unchanged, without a tag
+	Bytes       int64            // decoded input bytes
+	Elapsed     time.Duration
+}
+
+// RecordsPerSecond is Records over Elapsed.
+func (s Stats) RecordsPerSecond() float64 {
+	if s.Elapsed <= 0 {
+		return 0
+	}
+	return float64(s.Records) / s.Elapsed.Seconds()
+}
