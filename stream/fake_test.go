@@ -91,6 +91,8 @@ func runString(t testing.TB, opts Options, input string) (string, Stats, []error
 }
 
 // onlyReader hides every method but Read, as a pipe would.
-type onlyReader struct{ r interface{ Read([]byte) (int, error) } }
+type onlyReader struct {
+	r interface{ Read([]byte) (int, error) }
+}
 
 func (o onlyReader) Read(p []byte) (int, error) { return o.r.Read(p) }

@@ -7,18 +7,18 @@ import (
 	"time"
 )
 
-// Format is the kind of input records.
-type Format int
+// InputFormat is the kind of input records.
+type InputFormat int
 
 const (
-	// FormatAuto decides per line: a line whose first byte after spaces and
+	// InputAuto decides per line: a line whose first byte after spaces and
 	// tabs is '{' is a JSON record, any other line is text.
-	FormatAuto Format = iota
-	// FormatJSONL treats every line as a JSON record; a line that is not a
+	InputAuto InputFormat = iota
+	// InputJSONL treats every line as a JSON record; a line that is not a
 	// valid JSON object is malformed.
-	FormatJSONL
-	// FormatText treats every line as text, even one that looks like JSON.
-	FormatText
+	InputJSONL
+	// InputText treats every line as text, even one that looks like JSON.
+	InputText
 )
 
 // Emit is how a text line is written.
@@ -45,14 +45,14 @@ const (
 
 // ParseFormat, ParseEmit and ParseCompress read the names the command line
 // uses.
-func ParseFormat(s string) (Format, error) {
+func ParseFormat(s string) (InputFormat, error) {
 	switch s {
 	case "auto", "":
-		return FormatAuto, nil
+		return InputAuto, nil
 	case "jsonl":
-		return FormatJSONL, nil
+		return InputJSONL, nil
 	case "text":
-		return FormatText, nil
+		return InputText, nil
 	}
 	return 0, fmt.Errorf("unknown format %q (want auto, jsonl or text)", s)
 }
@@ -112,7 +112,7 @@ type Options struct {
 	// Switch, if set, lets the caller replace the Tagger while Run runs.
 	Switch *Switch
 
-	Format Format
+	Format InputFormat
 	// TextKeys are dotted paths to the text in a JSON record ("text" when
 	// empty). The strings found are joined with one space. A path's value
 	// that is null or absent adds nothing; a number, boolean, array or

@@ -225,9 +225,9 @@ func (w *worker) record(b *block, line, term []byte) {
 		return
 	}
 	switch w.cfg.o.Format {
-	case FormatJSONL:
+	case InputJSONL:
 		w.jsonRecord(b, line, term)
-	case FormatText:
+	case InputText:
 		w.textRecord(b, line, term)
 	default:
 		if looksJSON(line) {
