@@ -1,0 +1,283 @@
+package stream
+
+import (
+	"bufio"
+	"bytes"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"slices"
+	"strings"
+)
+
+// Labelled-record formats.
+const (
+	LabelledJSONL = "jsonl" // one JSON object a line
+	LabelledTSV   = "tsv"   // label<TAB>text
+)
+
+// Problems with labelled records. A LabelledSet's Problems are
+// RecordErrors that unwrap to one of these (or to ErrMalformed).
+var (
+	ErrNoText      = errors.New("stream: record has no text")
+	ErrNoLabel     = errors.New("stream: record has no label")
+	ErrBadLabel    = errors.New("stream: label is not a string or an array of strings")
+	ErrNoTab       = errors.New("stream: no tab between label and text")
+	ErrNoRecords   = errors.New("stream: no usable labelled records")
+	ErrUnknownForm = errors.New("stream: unknown labelled-record format")
+)
+
+// LabelledOptions say how to read labelled records. The zero value reads
+// JSON Lines with the text under "text" and the label under "label".
+type LabelledOptions struct {
+	// Format is LabelledJSONL (the default, "") or LabelledTSV.
+	Format string
+	// TextKeys are dotted paths to the text (array elements by decimal
+	// index, as for tag's keys); the values found are joined with a space.
+	// Empty means {"text"}.
+	TextKeys []string
+	// LabelKey is the dotted path to the label: a string, an array of
+	// strings (several tags), or a number (taken as its JSON spelling).
+	// Empty means "label".
+	LabelKey string
+	// Report caps the Problems kept; 0 means 5, negative none.
+	Report int
+	// Stdin is read for the file name "-"; nil means os.Stdin.
+	Stdin io.Reader
+}
+
+// Labelled is one usable record.
+type Labelled struct {
+	Text   string
+	Labels []string // at least one; single-label training uses Labels[0]
+	File   string
+	Line   int64
+}
+
+// LabelledSet is what ReadLabelled found, in input order.
+type LabelledSet struct {
+	Records  []Labelled
+	Skipped  int            // records without usable text or label, or malformed
+	Blank    int            // empty lines, which are not records
+	Multi    int            // records with more than one label
+	Problems []*RecordError // the first few skipped records, with why
+}
+
+// Counts returns the number of records per first label.
+func (s *LabelledSet) Counts() map[string]int {
+	c := map[string]int{}
+	for _, r := range s.Records {
+		c[r.Labels[0]]++
+	}
+	return c
+}
+
+// Rare returns, sorted, the first labels that have fewer than two records:
+// too few to both train on and check.
+func (s *LabelledSet) Rare() []string {
+	var rare []string
+	for l, n := range s.Counts() {
+		if n < 2 {
+			rare = append(rare, l)
+		}
+	}
+	slices.Sort(rare)
+	return rare
+}
+
+// ReadLabelled reads labelled records from files ("-" is standard input),
+// one after another, each plain or gzip/zstd/bzip2 compressed (sniffed from
+// its first bytes). A record without text or label, or that is not valid
+// JSON, is counted in Skipped and the first few are kept in Problems with
+// file and line; it is never silently dropped. An input that cannot be
+// opened or read is an error (an *InputError); so is having no usable
+// record at all (ErrNoRecords, naming the files).
+func ReadLabelled(files []string, opt LabelledOptions) (*LabelledSet, error) {
+	if opt.Format == "" {
+		opt.Format = LabelledJSONL
+	}
+	if opt.Format != LabelledJSONL && opt.Format != LabelledTSV {
+		return nil, fmt.Errorf("%w %q (want %s or %s)", ErrUnknownForm, opt.Format, LabelledJSONL, LabelledTSV)
+	}
+	if len(opt.TextKeys) == 0 {
+		opt.TextKeys = []string{"text"}
+	}
+	if opt.LabelKey == "" {
+		opt.LabelKey = "label"
+	}
+	if opt.Report == 0 {
+		opt.Report = 5
+	}
+	r := &labelReader{opt: opt, set: &LabelledSet{}, label: strings.Split(opt.LabelKey, ".")}
+	for _, k := range opt.TextKeys {
+		r.text = append(r.text, strings.Split(k, "."))
+	}
+	for _, name := range files {
+		if err := r.file(name); err != nil {
+			return nil, err
+		}
+	}
+	if len(r.set.Records) == 0 {
+		return r.set, fmt.Errorf("%w in %s", ErrNoRecords, strings.Join(files, ", "))
+	}
+	return r.set, nil
+}
+
+type labelReader struct {
+	opt     LabelledOptions
+	set     *LabelledSet
+	text    [][]string
+	label   []string
+	scan    scanner
+	scratch []byte
+}
+
+func (r *labelReader) file(name string) error {
+	in, err := openInput(name, r.opt.Stdin, nil)
+	if err != nil {
+		return &InputError{File: name, Err: err}
+	}
+	defer in.closer()
+	br := bufio.NewReaderSize(in.r, 64<<10)
+	var line int64
+	for {
+		b, err := br.ReadBytes('\n')
+		if len(b) > 0 {
+			line++
+			r.record(name, line, bytes.TrimRight(b, "\r\n"))
+		}
+		if err == io.EOF {
+			return nil
+		}
+		if err != nil {
+			return &InputError{File: name, Line: line, Err: err}
+		}
+	}
+}
+
+func (r *labelReader) problem(file string, line int64, err error) {
+	r.set.Skipped++
+	if len(r.set.Problems) < r.opt.Report {
+		r.set.Problems = append(r.set.Problems, &RecordError{File: file, Line: line, Err: err})
+	}
+}
+
+func (r *labelReader) record(file string, line int64, b []byte) {
+	if len(bytes.TrimSpace(b)) == 0 {
+		r.set.Blank++
+		return
+	}
+	var text string
+	var labels []string
+	var err error
+	if r.opt.Format == LabelledTSV {
+		text, labels, err = r.tsv(b)
+	} else {
+		text, labels, err = r.jsonl(b)
+	}
+	if err != nil {
+		r.problem(file, line, err)
+		return
+	}
+	if len(labels) > 1 {
+		r.set.Multi++
+	}
+	r.set.Records = append(r.set.Records, Labelled{Text: text, Labels: labels, File: file, Line: line})
+}
+
+func (r *labelReader) tsv(b []byte) (string, []string, error) {
+	label, text, ok := bytes.Cut(b, []byte{'\t'})
+	switch {
+	case !ok:
+		return "", nil, ErrNoTab
+	case len(bytes.TrimSpace(label)) == 0:
+		return "", nil, ErrNoLabel
+	case len(bytes.TrimSpace(text)) == 0:
+		return "", nil, ErrNoText
+	}
+	return string(text), []string{string(bytes.TrimSpace(label))}, nil
+}
+
+func (r *labelReader) jsonl(b []byte) (string, []string, error) {
+	if ok, e := r.scan.validObject(b); !ok {
+		return "", nil, fmt.Errorf("%w: %s at byte %d", ErrMalformed, e.msg, e.off+1)
+	}
+	var parts []string
+	for _, path := range r.text {
+		s, e, ok, scratch := findPath(b, 0, path, r.scratch)
+		r.scratch = scratch
+		if !ok {
+			continue
+		}
+		var v string
+		if json.Unmarshal(b[s:e], &v) != nil {
+			if string(b[s:e]) == "null" {
+				continue
+			}
+			return "", nil, fmt.Errorf("%w: %s", ErrNotString, strings.Join(path, "."))
+		}
+		if strings.TrimSpace(v) != "" {
+			parts = append(parts, v)
+		}
+	}
+	if len(parts) == 0 {
+		return "", nil, ErrNoText
+	}
+	s, e, ok, scratch := findPath(b, 0, r.label, r.scratch)
+	r.scratch = scratch
+	if !ok {
+		return "", nil, ErrNoLabel
+	}
+	labels, err := decodeLabels(b[s:e])
+	if err != nil {
+		return "", nil, err
+	}
+	return strings.Join(parts, " "), labels, nil
+}
+
+// decodeLabels reads a label value: a string, a number (its spelling) or
+// an array of those; empty strings and null are not labels.
+func decodeLabels(raw []byte) ([]string, error) {
+	var v any
+	d := json.NewDecoder(bytes.NewReader(raw))
+	d.UseNumber()
+	if err := d.Decode(&v); err != nil {
+		return nil, ErrBadLabel
+	}
+	one := func(x any) (string, error) {
+		switch x := x.(type) {
+		case string:
+			return strings.TrimSpace(x), nil
+		case json.Number:
+			return x.String(), nil
+		case nil:
+			return "", nil
+		}
+		return "", ErrBadLabel
+	}
+	var out []string
+	if arr, ok := v.([]any); ok {
+		for _, x := range arr {
+			s, err := one(x)
+			if err != nil {
+				return nil, err
+			}
+			if s != "" {
+				out = append(out, s)
+			}
+		}
+	} else {
+		s, err := one(v)
+		if err != nil {
+			return nil, err
+		}
+		if s != "" {
+			out = append(out, s)
+		}
+	}
+	if len(out) == 0 {
+		return nil, ErrNoLabel
+	}
+	return out, nil
+}
