@@ -54,6 +54,7 @@ type Model struct {
 
 	closer func() error
 	tok    *Tokenizer
+	src    *source // the file's bytes when opened or loaded (open.go); nil when built
 }
 
 // Rows is the number of embedding rows: padding, vocabulary and buckets.

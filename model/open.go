@@ -1,0 +1,508 @@
+package model
+
+import (
+	"encoding/binary"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"math"
+	"math/bits"
+	"os"
+	"strconv"
+	"strings"
+	"unsafe"
+)
+
+// Tensor names of a model file (see the contract in Encode's doc).
+const (
+	TensorEmbedding    = "embedding"
+	TensorVocabOffsets = "vocab.offsets"
+	TensorVocabIndex   = "vocab.index"
+	TensorVocabBytes   = "vocab.bytes"
+	TensorHiddenW      = "hidden.weight"
+	TensorHiddenB      = "hidden.bias"
+	TensorOutputW      = "output.weight"
+	TensorOutputB      = "output.bias"
+)
+
+// ConvWeightName, ConvBiasName and FoldName name the per-width tensors of
+// width number i (in Config.Widths order).
+func ConvWeightName(i int) string { return "convs." + strconv.Itoa(i) + ".weight" }
+
+// ConvBiasName names width i's convolution bias.
+func ConvBiasName(i int) string { return "convs." + strconv.Itoa(i) + ".bias" }
+
+// FoldName names width i's folded table.
+func FoldName(i int) string { return "fold." + strconv.Itoa(i) }
+
+// Metadata keys this package reads and writes. All values are strings;
+// those marked JSON hold a JSON document.
+const (
+	MetaFormat        = "format"         // always FormatName
+	MetaFormatVersion = "format_version" // decimal FormatVersion
+	MetaLabels        = "labels"         // JSON array of strings
+	MetaConfig        = "config"         // JSON of Config
+	MetaTokenizer     = "tokenizer"      // JSON of TokenizerSettings
+	MetaTraining      = "training"       // JSON training summary, optional, written by training
+	MetaChecksum      = "checksum"       // "sha256:" + hex of the whole data buffer
+	MetaCreatedBy     = "created_by"     // "convtag " + Version
+)
+
+// FormatName is the value of the "format" metadata key.
+const FormatName = "convtag"
+
+// source is where an opened model's bytes live.
+type source struct {
+	name string
+	file []byte // the whole file; the tensors alias it
+	data int    // offset of the data buffer in file
+}
+
+// littleEndian is whether this host stores numbers little-endian, as the
+// file does; only then can tensors be viewed in place.
+var littleEndian = func() bool {
+	x := uint16(1)
+	return *(*byte)(unsafe.Pointer(&x)) == 1
+}()
+
+// Open memory-maps the model file at path (read-only, shared) and checks it
+// as Load does; the tensors are views of the mapping. Close the model to
+// unmap it. On systems without mmap the file is read into memory.
+//
+// The mapping stays valid while the file is replaced (Save writes a new
+// file and renames it), but truncating the file in place while it is
+// mapped would make the process fault: never do that.
+func Open(path string) (*Model, error) {
+	b, unmap, err := mapFile(path)
+	if err != nil {
+		return nil, fmt.Errorf("open model: %w", err)
+	}
+	m, err := Load(b, path)
+	if err != nil {
+		if unmap != nil {
+			unmap()
+		}
+		return nil, err
+	}
+	m.closer = unmap
+	return m, nil
+}
+
+// readFile is the portable way to get a file's bytes, and Open's fallback.
+func readFile(path string) ([]byte, func() error, error) {
+	b, err := os.ReadFile(path)
+	return b, nil, err
+}
+
+// Load checks the model file held in b and returns a model whose tensors
+// are zero-copy views of b, so b must stay unchanged while the model is in
+// use (an embedded file's bytes, a mapping). name is used in errors only.
+// A tensor that is not aligned in memory for its type, or any tensor on a
+// big-endian host, is copied instead.
+//
+// After the container checks of ParseContainer it checks the schema: the
+// format and format_version metadata, labels, config and tokenizer
+// settings, that every tensor the config calls for is present with its
+// dtype and shape and no other is, the vocabulary (offsets non-decreasing
+// and ending at the blob's end, a power-of-two index larger than the
+// vocabulary whose entries are word numbers), a zero padding row, and that
+// the convolution and dense weights are finite. The embedding and fold
+// tables grow with the vocabulary, so Load does not read them: Verify
+// checks them and the checksum. Errors are *FormatError naming the file.
+func Load(b []byte, name string) (*Model, error) {
+	m, err := load(b, name)
+	if err != nil {
+		var fe *FormatError
+		if errors.As(err, &fe) {
+			fe.File = name
+			return nil, fe
+		}
+		return nil, &FormatError{File: name, Err: err}
+	}
+	return m, nil
+}
+
+func load(b []byte, name string) (*Model, error) {
+	meta, tensors, err := ParseContainer(b)
+	if err != nil {
+		return nil, err
+	}
+	m, err := assemble(meta, tensors)
+	if err != nil {
+		return nil, err
+	}
+	n := binary.LittleEndian.Uint64(b) // checked by ParseContainer
+	m.src = &source{name: name, file: b, data: 8 + int(n)}
+	return m, nil
+}
+
+// decodeMeta decodes a JSON metadata value into v, rejecting duplicate and
+// unknown keys and trailing data.
+func decodeMeta(meta map[string]string, key string, v any) error {
+	s, ok := meta[key]
+	if !ok {
+		return fmt.Errorf("%w: no %q", ErrMetadata, key)
+	}
+	if err := checkNoDuplicateKeys([]byte(s)); err != nil {
+		return fmt.Errorf("%w: %s: %v", ErrMetadata, key, err)
+	}
+	dec := json.NewDecoder(strings.NewReader(s))
+	dec.DisallowUnknownFields()
+	if err := dec.Decode(v); err != nil {
+		return fmt.Errorf("%w: %s: %v", ErrMetadata, key, err)
+	}
+	if dec.More() {
+		return fmt.Errorf("%w: %s: data after the JSON value", ErrMetadata, key)
+	}
+	return nil
+}
+
+// assemble checks a parsed container against the model schema and builds
+// the model over its tensors.
+func assemble(meta map[string]string, tensors []Tensor) (*Model, error) {
+	if f, ok := meta[MetaFormat]; !ok || f != FormatName {
+		return nil, fmt.Errorf("%w: format %q, want %q", ErrNotModel, f, FormatName)
+	}
+	if v := meta[MetaFormatVersion]; v != strconv.Itoa(FormatVersion) {
+		return nil, fmt.Errorf("%w: %q, this build reads %d", ErrVersion, v, FormatVersion)
+	}
+	m := &Model{Meta: meta}
+	if err := decodeMeta(meta, MetaConfig, &m.Config); err != nil {
+		return nil, err
+	}
+	if err := m.Config.Validate(); err != nil {
+		return nil, fmt.Errorf("%w: config: %v", ErrMetadata, err)
+	}
+	if err := decodeMeta(meta, MetaTokenizer, &m.Tokenizer); err != nil {
+		return nil, err
+	}
+	if m.Tokenizer.MaxTokens < 0 {
+		return nil, fmt.Errorf("%w: tokenizer: max_tokens %d is negative", ErrMetadata, m.Tokenizer.MaxTokens)
+	}
+	if err := decodeMeta(meta, MetaLabels, &m.Labels); err != nil {
+		return nil, err
+	}
+	if len(m.Labels) < 2 {
+		return nil, fmt.Errorf("%w: need at least 2 labels, have %d", ErrMetadata, len(m.Labels))
+	}
+	if i := firstDuplicate(m.Labels); i >= 0 {
+		return nil, fmt.Errorf("%w: duplicate label %q", ErrMetadata, m.Labels[i])
+	}
+	if c, ok := meta[MetaChecksum]; ok {
+		if _, err := parseChecksum(c); err != nil {
+			return nil, err
+		}
+	}
+
+	s := &schema{byName: make(map[string]*Tensor, len(tensors))}
+	for i := range tensors {
+		s.byName[tensors[i].Name] = &tensors[i]
+	}
+	if err := s.build(m); err != nil {
+		return nil, err
+	}
+	for name := range s.byName {
+		if !s.used[name] {
+			return nil, formatErr(name, ErrUnexpectedTensor, "not part of this model's config")
+		}
+	}
+	m.tok = NewTokenizer(m.Tokenizer)
+	return m, nil
+}
+
+// schema hands out the tensors the config calls for, checked.
+type schema struct {
+	byName map[string]*Tensor
+	used   map[string]bool
+}
+
+// get returns the named tensor after checking its dtype and shape.
+func (s *schema) get(name, dtype string, shape ...int) (*Tensor, error) {
+	t, ok := s.byName[name]
+	if !ok {
+		return nil, formatErr(name, ErrMissingTensor, "")
+	}
+	if s.used == nil {
+		s.used = map[string]bool{}
+	}
+	s.used[name] = true
+	if t.DType != dtype {
+		return nil, formatErr(name, ErrSchema, "dtype %s, want %s", t.DType, dtype)
+	}
+	if !equalInts(t.Shape, shape) {
+		return nil, formatErr(name, ErrSchema, "shape %v, want %v", t.Shape, shape)
+	}
+	return t, nil
+}
+
+func equalInts(a, b []int) bool {
+	if len(a) != len(b) {
+		return false
+	}
+	for i := range a {
+		if a[i] != b[i] {
+			return false
+		}
+	}
+	return true
+}
+
+// f32 returns the named F32 tensor as a float32 view (or copy).
+func (s *schema) f32(name string, shape ...int) ([]float32, error) {
+	t, err := s.get(name, "F32", shape...)
+	if err != nil {
+		return nil, err
+	}
+	return viewF32(t.Data), nil
+}
+
+// finite32 is f32 for a tensor whose every value must be finite.
+func (s *schema) finite32(name string, shape ...int) ([]float32, error) {
+	v, err := s.f32(name, shape...)
+	if err != nil {
+		return nil, err
+	}
+	if i := firstNonFinite32(v); i >= 0 {
+		return nil, formatErr(name, ErrNotFinite, "element %d is %v", i, v[i])
+	}
+	return v, nil
+}
+
+func (s *schema) build(m *Model) error {
+	cfg := m.Config
+	d, f := cfg.Dim, cfg.Filters
+
+	// The vocabulary first: its size fixes the number of embedding rows.
+	offsT, ok := s.byName[TensorVocabOffsets]
+	if !ok || len(offsT.Shape) != 1 || offsT.Shape[0] < 1 {
+		if !ok {
+			return formatErr(TensorVocabOffsets, ErrMissingTensor, "")
+		}
+		return formatErr(TensorVocabOffsets, ErrSchema, "shape %v, want [V+1]", offsT.Shape)
+	}
+	nWords := offsT.Shape[0] - 1
+	t, err := s.get(TensorVocabOffsets, "I64", nWords+1)
+	if err != nil {
+		return err
+	}
+	offs := viewI64(t.Data)
+	blobT, ok := s.byName[TensorVocabBytes]
+	if !ok {
+		return formatErr(TensorVocabBytes, ErrMissingTensor, "")
+	}
+	t, err = s.get(TensorVocabBytes, "U8", len(blobT.Data))
+	if err != nil {
+		return err
+	}
+	blob := t.Data
+	if offs[0] != 0 {
+		return formatErr(TensorVocabOffsets, ErrVocab, "first offset %d, want 0", offs[0])
+	}
+	for i := 1; i < len(offs); i++ {
+		if offs[i] < offs[i-1] {
+			return formatErr(TensorVocabOffsets, ErrVocab, "offset %d (%d) is below offset %d (%d)", i, offs[i], i-1, offs[i-1])
+		}
+	}
+	if last := offs[len(offs)-1]; last != int64(len(blob)) {
+		return formatErr(TensorVocabOffsets, ErrVocab, "last offset %d, but the word bytes are %d long", last, len(blob))
+	}
+	idxT, ok := s.byName[TensorVocabIndex]
+	if !ok {
+		return formatErr(TensorVocabIndex, ErrMissingTensor, "")
+	}
+	size := 0
+	if len(idxT.Shape) == 1 {
+		size = idxT.Shape[0]
+	}
+	if size < 8 || size <= nWords || bits.OnesCount(uint(size)) != 1 {
+		return formatErr(TensorVocabIndex, ErrVocab, "shape %v, want [S] with S a power of two, at least 8 and above the %d words", idxT.Shape, nWords)
+	}
+	t, err = s.get(TensorVocabIndex, "I32", size)
+	if err != nil {
+		return err
+	}
+	index := viewI32(t.Data)
+	for i, e := range index {
+		if e < 0 || int(e) > nWords {
+			return formatErr(TensorVocabIndex, ErrVocab, "entry %d is %d, outside 0..%d", i, e, nWords)
+		}
+	}
+	m.Vocab = &Vocab{blob: blob, offs: offs, index: index, buckets: cfg.Buckets}
+
+	rows := m.Rows()
+	if m.Emb, err = s.f32(TensorEmbedding, rows, d); err != nil {
+		return err
+	}
+	for j, x := range m.Emb[:d] {
+		if x != 0 {
+			return formatErr(TensorEmbedding, ErrSchema, "padding row 0 has %v at column %d, must be zero", x, j)
+		}
+	}
+	m.Convs = make([]Conv, len(cfg.Widths))
+	for i, w := range cfg.Widths {
+		c := &m.Convs[i]
+		c.Width = w
+		if c.W, err = s.finite32(ConvWeightName(i), f, d, w); err != nil {
+			return err
+		}
+		if c.B, err = s.finite32(ConvBiasName(i), f); err != nil {
+			return err
+		}
+	}
+	in := cfg.Features()
+	if cfg.Hidden > 0 {
+		h := &Dense{In: in, Out: cfg.Hidden}
+		if h.W, err = s.finite32(TensorHiddenW, h.Out, h.In); err != nil {
+			return err
+		}
+		if h.B, err = s.finite32(TensorHiddenB, h.Out); err != nil {
+			return err
+		}
+		m.Hidden = h
+		in = cfg.Hidden
+	}
+	m.Out = Dense{In: in, Out: len(m.Labels)}
+	if m.Out.W, err = s.finite32(TensorOutputW, m.Out.Out, m.Out.In); err != nil {
+		return err
+	}
+	if m.Out.B, err = s.finite32(TensorOutputB, m.Out.Out); err != nil {
+		return err
+	}
+	return s.buildFold(m, rows)
+}
+
+// buildFold picks up the optional fold tables: one per width or none, all
+// of one dtype, F32 or F16.
+func (s *schema) buildFold(m *Model, rows int) error {
+	cfg := m.Config
+	f := cfg.Filters
+	first, ok := s.byName[FoldName(0)]
+	if !ok {
+		for i := range cfg.Widths {
+			if _, ok := s.byName[FoldName(i)]; ok {
+				return formatErr(FoldName(0), ErrMissingTensor, "fold tables must cover every width or none")
+			}
+		}
+		return nil
+	}
+	dtype := first.DType
+	if dtype != "F32" && dtype != "F16" {
+		return formatErr(FoldName(0), ErrSchema, "dtype %s, want F32 or F16", dtype)
+	}
+	m.Fold = make([]FoldTable, len(cfg.Widths))
+	for i, w := range cfg.Widths {
+		t, err := s.get(FoldName(i), dtype, rows, w, f)
+		if err != nil {
+			if errors.Is(err, ErrMissingTensor) {
+				return formatErr(FoldName(i), ErrMissingTensor, "fold tables must cover every width or none")
+			}
+			return err
+		}
+		ft := &m.Fold[i]
+		ft.Width = w
+		// Row 0 is padding: its responses are zero, as the padding vector is.
+		if dtype == "F32" {
+			ft.F32 = viewF32(t.Data)
+			for j, x := range ft.F32[:w*f] {
+				if x != 0 {
+					return formatErr(FoldName(i), ErrSchema, "padding row 0 has %v at %d, must be zero", x, j)
+				}
+			}
+		} else {
+			ft.F16 = viewU16(t.Data)
+			for j, x := range ft.F16[:w*f] {
+				if x&0x7fff != 0 {
+					return formatErr(FoldName(i), ErrSchema, "padding row 0 has half 0x%04x at %d, must be zero", x, j)
+				}
+			}
+		}
+	}
+	return nil
+}
+
+func firstNonFinite32(v []float32) int {
+	for i, x := range v {
+		// Exponent all ones: infinity or NaN.
+		if math.Float32bits(x)&0x7f800000 == 0x7f800000 {
+			return i
+		}
+	}
+	return -1
+}
+
+func firstNonFinite16(v []uint16) int {
+	for i, x := range v {
+		if x&0x7c00 == 0x7c00 {
+			return i
+		}
+	}
+	return -1
+}
+
+// aligned reports whether b can be viewed in place as elements of the given
+// size: a little-endian host and b's start a multiple of size.
+func aligned(b []byte, size uintptr) bool {
+	return littleEndian && uintptr(unsafe.Pointer(unsafe.SliceData(b)))%size == 0
+}
+
+// viewF32 returns b (little-endian F32) as []float32, in place when
+// aligned, else as a copy.
+func viewF32(b []byte) []float32 {
+	n := len(b) / 4
+	if n == 0 {
+		return nil
+	}
+	if aligned(b, 4) {
+		return unsafe.Slice((*float32)(unsafe.Pointer(&b[0])), n)
+	}
+	v := make([]float32, n)
+	for i := range v {
+		v[i] = math.Float32frombits(binary.LittleEndian.Uint32(b[4*i:]))
+	}
+	return v
+}
+
+func viewI32(b []byte) []int32 {
+	n := len(b) / 4
+	if n == 0 {
+		return nil
+	}
+	if aligned(b, 4) {
+		return unsafe.Slice((*int32)(unsafe.Pointer(&b[0])), n)
+	}
+	v := make([]int32, n)
+	for i := range v {
+		v[i] = int32(binary.LittleEndian.Uint32(b[4*i:]))
+	}
+	return v
+}
+
+func viewI64(b []byte) []int64 {
+	n := len(b) / 8
+	if n == 0 {
+		return nil
+	}
+	if aligned(b, 8) {
+		return unsafe.Slice((*int64)(unsafe.Pointer(&b[0])), n)
+	}
+	v := make([]int64, n)
+	for i := range v {
+		v[i] = int64(binary.LittleEndian.Uint64(b[8*i:]))
+	}
+	return v
+}
+
+func viewU16(b []byte) []uint16 {
+	n := len(b) / 2
+	if n == 0 {
+		return nil
+	}
+	if aligned(b, 2) {
+		return unsafe.Slice((*uint16)(unsafe.Pointer(&b[0])), n)
+	}
+	v := make([]uint16, n)
+	for i := range v {
+		v[i] = binary.LittleEndian.Uint16(b[2*i:])
+	}
+	return v
+}

@@ -1,0 +1,329 @@
+package model
+
+import (
+	"bufio"
+	"crypto/sha256"
+	"encoding/binary"
+	"encoding/hex"
+	"encoding/json"
+	"fmt"
+	"hash"
+	"io"
+	"maps"
+	"math"
+	"os"
+	"path/filepath"
+	"strconv"
+	"strings"
+	"unsafe"
+)
+
+// Version is the program version written to the created_by metadata key.
+// The command sets it at start-up; it has no other effect.
+var Version = "dev"
+
+// Encode writes the model as a safetensors file. Tensors are packed so that
+// every one starts aligned for its element type: vocab.offsets (I64)
+// first, then the F32 tensors (embedding, convs.{i}.weight and .bias,
+// hidden.*, output.*, F32 fold tables), vocab.index (I32), F16 fold tables,
+// and vocab.bytes (U8) last. The metadata is m.Meta with this package's
+// keys (format, format_version, labels, config, tokenizer, checksum,
+// created_by) set from the model; other keys, such as training, are kept.
+// The same model always gives the same bytes. Encode checks the model as
+// Load would, including that every weight is finite, and writes nothing
+// when it fails.
+func (m *Model) Encode(w io.Writer) error {
+	meta, tensors, err := m.container()
+	if err != nil {
+		return err
+	}
+	return EncodeContainer(w, meta, tensors)
+}
+
+// container returns the model's metadata and tensors, ready to encode and
+// checked against the schema.
+func (m *Model) container() (map[string]string, []Tensor, error) {
+	if m.Vocab == nil {
+		return nil, nil, fmt.Errorf("model: encode: no vocabulary")
+	}
+	tensors := m.tensors()
+	for _, t := range tensors {
+		if n, ok := byteSize(t.Shape, DTypeSize(t.DType)); !ok || n != uint64(len(t.Data)) {
+			return nil, nil, formatErr(t.Name, ErrShape, "%d bytes do not fill %s %v", len(t.Data), t.DType, t.Shape)
+		}
+	}
+	meta := maps.Clone(m.Meta)
+	if meta == nil {
+		meta = map[string]string{}
+	}
+	meta[MetaFormat] = FormatName
+	meta[MetaFormatVersion] = strconv.Itoa(FormatVersion)
+	meta[MetaLabels] = mustJSON(m.Labels)
+	meta[MetaConfig] = mustJSON(m.Config)
+	meta[MetaTokenizer] = mustJSON(m.Tokenizer)
+	meta[MetaCreatedBy] = "convtag " + Version
+	h := sha256.New()
+	for _, t := range tensors {
+		h.Write(t.Data)
+	}
+	meta[MetaChecksum] = checksumString(h)
+
+	// The writer must never produce a file the loader refuses.
+	check, err := assemble(meta, tensors)
+	if err != nil {
+		return nil, nil, err
+	}
+	if err := check.checkLarge(); err != nil {
+		return nil, nil, err
+	}
+	return meta, tensors, nil
+}
+
+// tensors lists the model's tensors in file order (see Encode). Data views
+// the model's slices on a little-endian host and is a converted copy
+// otherwise.
+func (m *Model) tensors() []Tensor {
+	d, f := m.Config.Dim, m.Config.Filters
+	var ts []Tensor
+	add := func(name, dtype string, data []byte, shape ...int) {
+		ts = append(ts, Tensor{Name: name, DType: dtype, Shape: shape, Data: data})
+	}
+	v := m.Vocab
+	add(TensorVocabOffsets, "I64", bytesI64(v.offs), len(v.offs))
+	add(TensorEmbedding, "F32", bytesF32(m.Emb), len(m.Emb)/max(d, 1), d)
+	for i, c := range m.Convs {
+		add(ConvWeightName(i), "F32", bytesF32(c.W), f, d, c.Width)
+		add(ConvBiasName(i), "F32", bytesF32(c.B), len(c.B))
+	}
+	if h := m.Hidden; h != nil {
+		add(TensorHiddenW, "F32", bytesF32(h.W), h.Out, h.In)
+		add(TensorHiddenB, "F32", bytesF32(h.B), len(h.B))
+	}
+	add(TensorOutputW, "F32", bytesF32(m.Out.W), m.Out.Out, m.Out.In)
+	add(TensorOutputB, "F32", bytesF32(m.Out.B), len(m.Out.B))
+	foldShape := func(ft FoldTable, n int) []int {
+		return []int{n / max(ft.Width*f, 1), ft.Width, f}
+	}
+	for i, ft := range m.Fold {
+		if ft.F16 == nil {
+			add(FoldName(i), "F32", bytesF32(ft.F32), foldShape(ft, len(ft.F32))...)
+		}
+	}
+	add(TensorVocabIndex, "I32", bytesI32(v.index), len(v.index))
+	for i, ft := range m.Fold {
+		if ft.F16 != nil {
+			add(FoldName(i), "F16", bytesU16(ft.F16), foldShape(ft, len(ft.F16))...)
+		}
+	}
+	add(TensorVocabBytes, "U8", v.blob, len(v.blob))
+	return ts
+}
+
+func mustJSON(v any) string {
+	b, err := json.Marshal(v)
+	if err != nil {
+		panic("model: " + err.Error()) // only plain structs and slices of strings come here
+	}
+	return string(b)
+}
+
+// Save writes the model to path atomically: it encodes into a temporary
+// file in the same directory, syncs it and renames it over path, so a
+// reader never sees a partial file and a process that has the old file
+// mapped keeps its (unchanged) pages. The file gets mode 0644.
+func (m *Model) Save(path string) (err error) {
+	dir, base := filepath.Split(path)
+	if dir == "" {
+		dir = "."
+	}
+	f, err := os.CreateTemp(dir, "."+base+".*.tmp")
+	if err != nil {
+		return fmt.Errorf("save model: %w", err)
+	}
+	tmp := f.Name()
+	defer func() {
+		if err != nil {
+			f.Close()
+			os.Remove(tmp)
+			err = fmt.Errorf("save model %s: %w", path, err)
+		}
+	}()
+	bw := bufio.NewWriterSize(f, 1<<20)
+	if err = m.Encode(bw); err != nil {
+		return err
+	}
+	if err = bw.Flush(); err != nil {
+		return err
+	}
+	if err = f.Chmod(0o644); err != nil {
+		return err
+	}
+	if err = f.Sync(); err != nil {
+		return err
+	}
+	if err = f.Close(); err != nil {
+		return err
+	}
+	if err = os.Rename(tmp, path); err != nil {
+		return err
+	}
+	syncDir(dir)
+	return nil
+}
+
+// syncDir makes a rename durable where the system allows syncing a
+// directory; elsewhere the error is of no use and is dropped.
+func syncDir(dir string) {
+	d, err := os.Open(dir)
+	if err != nil {
+		return
+	}
+	d.Sync()
+	d.Close()
+}
+
+// Checksum returns "sha256:" and the hex SHA-256 of the model's data
+// buffer: the file's bytes after the header when the model was opened or
+// loaded, and what Encode would write otherwise.
+func (m *Model) Checksum() (string, error) {
+	h := sha256.New()
+	if m.src != nil {
+		h.Write(m.src.file[m.src.data:])
+		return checksumString(h), nil
+	}
+	if m.Vocab == nil {
+		return "", fmt.Errorf("model: checksum: no vocabulary")
+	}
+	for _, t := range m.tensors() {
+		h.Write(t.Data)
+	}
+	return checksumString(h), nil
+}
+
+func checksumString(h hash.Hash) string {
+	return "sha256:" + hex.EncodeToString(h.Sum(nil))
+}
+
+// parseChecksum checks the form of a checksum value.
+func parseChecksum(s string) ([]byte, error) {
+	hexPart, ok := strings.CutPrefix(s, "sha256:")
+	sum, err := hex.DecodeString(hexPart)
+	if !ok || err != nil || len(sum) != sha256.Size || strings.ToLower(hexPart) != hexPart {
+		return nil, fmt.Errorf("%w: checksum %q is not sha256:<64 lowercase hex digits>", ErrMetadata, s)
+	}
+	return sum, nil
+}
+
+// Verify reads the whole model: it recomputes the checksum of the data
+// buffer and compares it with the checksum metadata, and checks that every
+// weight, including the embedding and fold tables that Load leaves unread,
+// is finite. It returns a *FormatError naming the file (when there is
+// one); ErrNoChecksum when the metadata has no checksum, ErrChecksum on a
+// mismatch, ErrNotFinite for a NaN or infinity.
+func (m *Model) Verify() error {
+	name := ""
+	if m.src != nil {
+		name = m.src.name
+	}
+	fail := func(err error) error {
+		if fe, ok := err.(*FormatError); ok {
+			fe.File = name
+			return fe
+		}
+		return &FormatError{File: name, Err: err}
+	}
+	want, ok := m.Meta[MetaChecksum]
+	if !ok {
+		return fail(ErrNoChecksum)
+	}
+	if _, err := parseChecksum(want); err != nil {
+		return fail(err)
+	}
+	got, err := m.Checksum()
+	if err != nil {
+		return fail(err)
+	}
+	if got != want {
+		return fail(fmt.Errorf("%w: metadata says %s, data gives %s", ErrChecksum, want, got))
+	}
+	if err := m.checkLarge(); err != nil {
+		return fail(err)
+	}
+	return nil
+}
+
+// checkLarge checks the tensors whose size grows with the vocabulary, which
+// Load does not read: the embedding and the fold tables must be finite.
+func (m *Model) checkLarge() error {
+	if i := firstNonFinite32(m.Emb); i >= 0 {
+		return formatErr(TensorEmbedding, ErrNotFinite, "row %d column %d is %v", i/m.Config.Dim, i%m.Config.Dim, m.Emb[i])
+	}
+	for k, ft := range m.Fold {
+		if i := firstNonFinite32(ft.F32); i >= 0 {
+			return formatErr(FoldName(k), ErrNotFinite, "element %d is %v", i, ft.F32[i])
+		}
+		if i := firstNonFinite16(ft.F16); i >= 0 {
+			return formatErr(FoldName(k), ErrNotFinite, "element %d is half 0x%04x", i, ft.F16[i])
+		}
+	}
+	return nil
+}
+
+// The bytes* functions give a slice's little-endian bytes: a view on a
+// little-endian host, a converted copy otherwise.
+
+func bytesF32(v []float32) []byte {
+	if len(v) == 0 {
+		return []byte{}
+	}
+	if littleEndian {
+		return unsafe.Slice((*byte)(unsafe.Pointer(&v[0])), 4*len(v))
+	}
+	b := make([]byte, 4*len(v))
+	for i, x := range v {
+		binary.LittleEndian.PutUint32(b[4*i:], math.Float32bits(x))
+	}
+	return b
+}
+
+func bytesI32(v []int32) []byte {
+	if len(v) == 0 {
+		return []byte{}
+	}
+	if littleEndian {
+		return unsafe.Slice((*byte)(unsafe.Pointer(&v[0])), 4*len(v))
+	}
+	b := make([]byte, 4*len(v))
+	for i, x := range v {
+		binary.LittleEndian.PutUint32(b[4*i:], uint32(x))
+	}
+	return b
+}
+
+func bytesI64(v []int64) []byte {
+	if len(v) == 0 {
+		return []byte{}
+	}
+	if littleEndian {
+		return unsafe.Slice((*byte)(unsafe.Pointer(&v[0])), 8*len(v))
+	}
+	b := make([]byte, 8*len(v))
+	for i, x := range v {
+		binary.LittleEndian.PutUint64(b[8*i:], uint64(x))
+	}
+	return b
+}
+
+func bytesU16(v []uint16) []byte {
+	if len(v) == 0 {
+		return []byte{}
+	}
+	if littleEndian {
+		return unsafe.Slice((*byte)(unsafe.Pointer(&v[0])), 2*len(v))
+	}
+	b := make([]byte, 2*len(v))
+	for i, x := range v {
+		binary.LittleEndian.PutUint16(b[2*i:], x)
+	}
+	return b
+}
