@@ -1,0 +1,192 @@
+package model
+
+import (
+	"fmt"
+	"math"
+)
+
+// Predictor runs the forward pass of one Model. It holds all per-call
+// scratch memory, so after the first few calls a prediction allocates
+// nothing. A Predictor must not be used by more than one goroutine at a
+// time; make one per worker with Model.NewPredictor. The Model itself is
+// shared read-only.
+//
+// Every slice a Predictor returns is owned by it and valid until its next
+// Predict or PredictRows call.
+type Predictor struct {
+	m      *Model
+	k      *kernels
+	tok    *Tokenizer
+	toks   Tokens
+	rows   []int32
+	direct bool
+
+	feat   []float32 // pooled features, Config.Features()
+	win    []int32   // winning window start per feature, or -1
+	hid    []float32 // hidden activations, Config.Hidden
+	logits []float32
+	probs  []float32
+	acc    []float32 // kernel scratch, Filters
+	out4   [4]float32
+
+	// Direct path only, built on first use.
+	wt [][]float32 // per width, the filters as [F][w][d] (tap-major)
+	x  []float32   // the text's embedding rows, then zero rows
+}
+
+// NewPredictor returns a Predictor for m with its own scratch memory. It
+// panics if m.Fold is inconsistent with m's shape, which a loaded or
+// folded model never is.
+func (m *Model) NewPredictor() *Predictor {
+	if err := m.checkFold(); err != nil {
+		panic(err)
+	}
+	cfg := m.Config
+	p := &Predictor{
+		m:      m,
+		k:      activeKernels,
+		tok:    m.TokenizerFor(),
+		feat:   make([]float32, cfg.Features()),
+		win:    make([]int32, cfg.Features()),
+		hid:    make([]float32, cfg.Hidden),
+		logits: make([]float32, m.Out.Out),
+		probs:  make([]float32, m.Out.Out),
+		acc:    make([]float32, cfg.Filters),
+	}
+	limit := m.Tokenizer.Limit()
+	p.rows = make([]int32, 0, limit)
+	return p
+}
+
+// SetDirect forces the direct path (embedding rows times filters) even when
+// m has fold tables. Without fold tables the direct path is always used.
+func (p *Predictor) SetDirect(direct bool) { p.direct = direct }
+
+// Predict tokenizes text, looks its tokens up in the vocabulary and returns
+// one probability per label (softmax of the logits).
+func (p *Predictor) Predict(text []byte) []float32 {
+	p.tok.Tokenize(&p.toks, text)
+	p.rows = p.rows[:0]
+	for i := range p.toks.Len() {
+		p.rows = append(p.rows, p.m.Vocab.Row(p.toks.At(i)))
+	}
+	return p.PredictRows(p.rows)
+}
+
+// PredictRows returns the probabilities for a text given as embedding rows
+// (see Model.Emb). An empty rows is one padding token. It panics if a row is
+// out of range, which rows from Vocab.Row never are.
+func (p *Predictor) PredictRows(rows []int32) []float32 {
+	if len(rows) == 0 {
+		rows = padOnly[:]
+	}
+	nr := uint32(p.m.Rows())
+	for i, r := range rows {
+		if uint32(r) >= nr {
+			panic(fmt.Sprintf("model: row %d at position %d out of range 0..%d", r, i, nr-1))
+		}
+	}
+	if p.m.Fold != nil && !p.direct {
+		p.forwardFolded(rows)
+	} else {
+		p.forwardDirect(rows)
+	}
+	p.dense()
+	softmax(p.probs, p.logits)
+	return p.probs
+}
+
+var padOnly = [1]int32{0}
+
+// Logits returns the last prediction's logits, one per label.
+func (p *Predictor) Logits() []float32 { return p.logits }
+
+// Features returns the last prediction's pooled feature vector: for each
+// width in order, F values max_p ReLU(pre[p][f]).
+func (p *Predictor) Features() []float32 { return p.feat }
+
+// Winners returns, for each feature of Features, the position of the first
+// token of the window that won its max-over-time pooling: the first
+// position whose pre-activation is the maximum. When no window has a
+// positive pre-activation the feature is 0 after ReLU, no window
+// contributed anything, and the winner is -1, so an explanation never
+// credits an n-gram with a feature it did not raise.
+func (p *Predictor) Winners() []int32 { return p.win }
+
+// forwardDirect computes the features from the embeddings and filters.
+func (p *Predictor) forwardDirect(rows []int32) {
+	m := p.m
+	d, f := m.Config.Dim, m.Config.Filters
+	if p.wt == nil {
+		p.wt = make([][]float32, len(m.Convs))
+		for i, cv := range m.Convs {
+			p.wt[i] = transposeConv(cv.W, f, d, cv.Width)
+		}
+	}
+	n := len(rows)
+	// Positions go in blocks of 4, so the buffer holds zero rows past the
+	// text for the last block's windows: window p is x[p*d : (p+w)*d].
+	need := (n + 3 + m.Config.MaxWidth()) * d
+	if cap(p.x) < need {
+		p.x = make([]float32, max(need, (m.Tokenizer.Limit()+3+m.Config.MaxWidth())*d))
+	}
+	x := p.x[:need]
+	for i, r := range rows {
+		copy(x[i*d:(i+1)*d], m.Emb[int(r)*d:(int(r)+1)*d])
+	}
+	clear(x[n*d:])
+	out := &p.out4
+	for i, cv := range m.Convs {
+		w := cv.Width
+		l := w * d
+		mx, win := p.feat[i*f:(i+1)*f], p.win[i*f:(i+1)*f]
+		for c := range mx {
+			mx[c], win[c] = 0, -1
+		}
+		wt := p.wt[i]
+		for pos := 0; pos < n; pos += 4 {
+			xs := x[pos*d:]
+			for c := range f {
+				p.k.dot4(wt[c*l:(c+1)*l], xs, d, out)
+				for j := range min(4, n-pos) {
+					if v := cv.B[c] + out[j]; v > mx[c] {
+						mx[c], win[c] = v, int32(pos+j)
+					}
+				}
+			}
+		}
+	}
+}
+
+// dense applies the optional hidden layer (with ReLU) and the output layer.
+func (p *Predictor) dense() {
+	in := p.feat
+	if h := p.m.Hidden; h != nil {
+		for o := range h.Out {
+			p.hid[o] = max(0, h.B[o]+p.k.dot(h.W[o*h.In:(o+1)*h.In], in))
+		}
+		in = p.hid
+	}
+	o := &p.m.Out
+	for c := range o.Out {
+		p.logits[c] = o.B[c] + p.k.dot(o.W[c*o.In:(c+1)*o.In], in)
+	}
+}
+
+// softmax sets dst to the softmax of x, subtracting the maximum first so
+// that no exponential overflows.
+func softmax(dst, x []float32) {
+	mx := float32(math.Inf(-1))
+	for _, v := range x {
+		mx = max(mx, v)
+	}
+	var sum float64
+	for i, v := range x {
+		e := math.Exp(float64(v - mx))
+		dst[i] = float32(e)
+		sum += e
+	}
+	for i := range dst {
+		dst[i] = float32(float64(dst[i]) / sum)
+	}
+}
