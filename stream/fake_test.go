@@ -48,13 +48,21 @@ type keywordScorer struct {
 	k   *keywordTagger
 	p   []float32
 	rng *rand.Rand
+	low []byte
 }
 
 func (s *keywordScorer) Score(text []byte) []float32 {
 	if s.k.delay > 0 && s.rng.IntN(8) == 0 {
 		time.Sleep(time.Duration(s.rng.Int64N(int64(s.k.delay))))
 	}
-	lower := bytes.ToLower(text)
+	s.low = s.low[:0]
+	for _, c := range text {
+		if c >= 'A' && c <= 'Z' {
+			c += 'a' - 'A'
+		}
+		s.low = append(s.low, c)
+	}
+	lower := s.low
 	sum := 0.0
 	for i, ws := range s.k.words {
 		n := 0.5 // "other" wins ties with nothing found
