@@ -1,0 +1,5 @@
+//go:build !race
+
+package sgns
+
+const raceEnabled = false
