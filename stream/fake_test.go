@@ -52,7 +52,7 @@ type keywordScorer struct {
 }
 
 func (s *keywordScorer) Score(text []byte) []float32 {
-	if s.k.delay > 0 && s.rng.IntN(8) == 0 {
+	if s.k.delay > 0 && s.rng.IntN(64) == 0 {
 		time.Sleep(time.Duration(s.rng.Int64N(int64(s.k.delay))))
 	}
 	s.low = s.low[:0]

@@ -187,7 +187,7 @@ func (w *worker) process(b *block) {
 			b.n.records++
 			b.n.tooLong++
 			b.n.rejected++
-			b.errs = append(b.errs, lineErr{0, fmt.Errorf("%w (over %d bytes): passed through untouched", ErrTooLong, w.cfg.maxLine)})
+			b.errs = append(b.errs, lineErr{0, w.tooLong()})
 		}
 		if b.rawEnd {
 			b.lines = 1
@@ -219,6 +219,13 @@ func (w *worker) record(b *block, line, term []byte) {
 	if len(term) == 2 {
 		b.n.crlf++
 	}
+	if len(line) > w.cfg.maxLine {
+		// The cutter sends most overlong lines as raw pieces; one that
+		// ended within the chunk that took it past the limit lands here.
+		b.n.tooLong++
+		w.problem(b, line, term, w.tooLong())
+		return
+	}
 	if isBlank(line) {
 		b.n.blank++
 		w.pass(b, line, term)
@@ -236,6 +243,13 @@ func (w *worker) record(b *block, line, term []byte) {
 			w.textRecord(b, line, term)
 		}
 	}
+}
+
+func (w *worker) tooLong() error {
+	if w.cfg.o.Rejects != nil {
+		return fmt.Errorf("%w (over %d bytes): sent to the rejects", ErrTooLong, w.cfg.maxLine)
+	}
+	return fmt.Errorf("%w (over %d bytes): passed through untouched", ErrTooLong, w.cfg.maxLine)
 }
 
 // pass writes a record unchanged and untagged, unless Keep leaves it out.

@@ -103,7 +103,7 @@ func TestOrderAnyJobs(t *testing.T) {
 	for _, jobs := range []int{1, 2, 8} {
 		for _, bs := range []int{64, 4096} {
 			tg := newKeywordTagger()
-			tg.delay = 300 * time.Microsecond
+			tg.delay = 2 * time.Millisecond
 			got, st, _ := runString(t, Options{Jobs: jobs, BlockSize: bs, Tagger: tg}, in)
 			if got != want {
 				t.Errorf("-j %d, block %d: output differs from -j 1 (%d vs %d bytes)", jobs, bs, len(got), len(want))
