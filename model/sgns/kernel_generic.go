@@ -1,7 +1,7 @@
 package sgns
 
-// dot is the inner product of x and y[:len(x)].
-func dot(x, y []float32) float32 {
+// dotGeneric is the inner product of x and y[:len(x)].
+func dotGeneric(x, y []float32) float32 {
 	y = y[:len(x)]
 	var s0, s1, s2, s3 float32
 	i := 0
@@ -17,8 +17,8 @@ func dot(x, y []float32) float32 {
 	return (s0 + s1) + (s2 + s3)
 }
 
-// axpy adds a·x to y[:len(x)].
-func axpy(a float32, x, y []float32) {
+// axpyGeneric adds a·x to y[:len(x)].
+func axpyGeneric(a float32, x, y []float32) {
 	y = y[:len(x)]
 	i := 0
 	for ; i+4 <= len(x); i += 4 {
