@@ -85,8 +85,9 @@ type EpochStats struct {
 	TrainAcc   float64 `json:"train_accuracy"`
 	DevAcc     float64 `json:"dev_accuracy"`
 	DevMacroF1 float64 `json:"dev_macro_f1"`
-	Tokens     int     `json:"tokens"` // training tokens (windows) seen
-	Seconds    float64 `json:"seconds"`
+	Tokens     int     `json:"tokens"`  // training tokens (windows) seen
+	Seconds    float64 `json:"seconds"` // this epoch's training time, without the dev evaluation
+	Elapsed    float64 `json:"elapsed"` // since Train started, at the end of this epoch
 }
 
 // TrainResult sums up a run of Train.
@@ -199,7 +200,7 @@ func Train(m *Model, train, dev []Example, opt TrainOptions) (*TrainResult, erro
 		if len(dev) > 0 {
 			es.DevAcc, es.DevMacroF1 = t.evaluate(dev)
 		}
-		es.Seconds = time.Since(start).Seconds()
+		es.Elapsed = time.Since(start).Seconds()
 		res.Curve = append(res.Curve, es)
 		res.EpochsRun = epoch
 		if len(dev) == 0 || es.DevAcc > bestAcc {

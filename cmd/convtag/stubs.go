@@ -5,7 +5,6 @@ import "github.com/spf13/cobra"
 // Commands that later work builds. Each says so and exits non-zero.
 func init() {
 	for _, c := range []struct{ name, short string }{
-		{"train", "Train a model from labelled records"},
 		{"eval", "Evaluate a model on labelled records"},
 		{"embed", "Learn word vectors from unlabelled text"},
 	} {
