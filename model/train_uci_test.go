@@ -24,10 +24,10 @@ import (
 // hash buckets.
 var uciRecipe = struct {
 	Folds, Dim, Filters, Buckets, MinCount, Epochs, Patience, Batch int
-	Widths                                                           []int
-	Dropout, MaxNorm, DevFraction                                    float64
-	Opt                                                              string
-	Seed                                                             uint64
+	Widths                                                          []int
+	Dropout, MaxNorm, DevFraction                                   float64
+	Opt                                                             string
+	Seed                                                            uint64
 }{10, 128, 100, 1000, 2, 25, 5, 50, []int{3, 4, 5}, 0.5, 3, 0.1, OptAdadelta, 1}
 
 // uciEnabled says whether the cross-validation runs: under CI=true (where
