@@ -1,0 +1,610 @@
+package model
+
+import (
+	"bufio"
+	"fmt"
+	"math/rand/v2"
+	"os"
+	"reflect"
+	"strconv"
+	"strings"
+	"sync"
+	"testing"
+	"unicode/utf8"
+
+	"golang.org/x/text/unicode/norm"
+)
+
+// Outside references: Debian's unicode-data package (version 15.0.0, the
+// Unicode version of rivo/uniseg v0.4.7, golang.org/x/text v0.44.0 and Go's
+// unicode package).
+const (
+	tokUnicodeVersion   = "15.0.0"
+	tokWordBreakTest    = "/usr/share/unicode/auxiliary/WordBreakTest.txt"
+	tokDerivedNormProps = "/usr/share/unicode/DerivedNormalizationProps.txt"
+)
+
+// tokReference opens an outside reference file whose first line must name
+// Unicode tokUnicodeVersion. A missing or different file skips the test,
+// or fails it when CI=true.
+func tokReference(t *testing.T, path string) *os.File {
+	t.Helper()
+	miss := t.Skipf
+	if os.Getenv("CI") == "true" {
+		miss = t.Fatalf
+	}
+	f, err := os.Open(path)
+	if err != nil {
+		miss("reference missing (apt-get install unicode-data): %v", err)
+		return nil
+	}
+	t.Cleanup(func() { f.Close() })
+	first, _ := bufio.NewReader(f).ReadString('\n')
+	if !strings.Contains(first, "-"+tokUnicodeVersion+".txt") {
+		miss("%s is not Unicode %s: first line %q", path, tokUnicodeVersion, first)
+		return nil
+	}
+	if _, err := f.Seek(0, 0); err != nil {
+		t.Fatal(err)
+	}
+	return f
+}
+
+// tokRounds is n, or a tenth of it with -short.
+func tokRounds(n int) int {
+	if testing.Short() {
+		return n / 10
+	}
+	return n
+}
+
+func tokStrings(ts *Tokens) []string {
+	out := make([]string, ts.Len())
+	for i := range out {
+		out[i] = string(ts.At(i))
+	}
+	return out
+}
+
+func tokenizeStrings(tk *Tokenizer, text string) []string {
+	var ts Tokens
+	tk.Tokenize(&ts, []byte(text))
+	return tokStrings(&ts)
+}
+
+// cutWords is the segmentation layer alone: all word segments of s, cut
+// with segmenter mode.
+func cutWords(s []byte, mode int) []string {
+	var out []string
+	wc := wordCutter{rest: s, state: -1, mode: mode}
+	for seg, kind := wc.next(); kind != segEnd; seg, kind = wc.next() {
+		out = append(out, string(seg))
+	}
+	return out
+}
+
+// TestTokenizeWordBreakTest checks the word segmenter, before
+// normalisation and token filtering, against every test line of the
+// Unicode Consortium's WordBreakTest.txt for Unicode 15.0.0 (UAX #29): the
+// general segmenters (rivo/uniseg alone, and the hybrid of our ASCII
+// segmenter and uniseg that the tokenizer uses) on all lines, our ASCII
+// segmenter alone on the lines whose code points are all ASCII (the others
+// are outside its domain; the tokenizer never gives it such text).
+func TestTokenizeWordBreakTest(t *testing.T) {
+	f := tokReference(t, tokWordBreakTest)
+	sc := bufio.NewScanner(f)
+	lineNo, general, ascii := 0, 0, 0
+	for sc.Scan() {
+		lineNo++
+		line, _, _ := strings.Cut(sc.Text(), "#")
+		fields := strings.Fields(line)
+		if len(fields) == 0 {
+			continue
+		}
+		// "÷ 0041 × 0308 ÷ 0020 ÷": ÷ is a boundary, × is none.
+		var text []byte
+		var want []string
+		var cur []byte
+		isASCII := true
+		for _, fld := range fields {
+			switch fld {
+			case "÷":
+				if len(cur) > 0 {
+					want = append(want, string(cur))
+					cur = nil
+				}
+			case "×":
+			default:
+				r, err := strconv.ParseUint(fld, 16, 32)
+				if err != nil {
+					t.Fatalf("%s:%d: bad code point %q", tokWordBreakTest, lineNo, fld)
+				}
+				cur = utf8.AppendRune(cur, rune(r))
+				text = utf8.AppendRune(text, rune(r))
+				isASCII = isASCII && r < utf8.RuneSelf
+			}
+		}
+		if len(cur) > 0 {
+			t.Fatalf("%s:%d: line does not end with ÷", tokWordBreakTest, lineNo)
+		}
+		if got := cutWords(text, cutUniseg); !reflect.DeepEqual(got, want) {
+			t.Errorf("%s:%d: uniseg segmenter: got %q, want %q", tokWordBreakTest, lineNo, got, want)
+		}
+		if got := cutWords(text, cutHybrid); !reflect.DeepEqual(got, want) {
+			t.Errorf("%s:%d: hybrid segmenter: got %q, want %q", tokWordBreakTest, lineNo, got, want)
+		}
+		general++
+		if isASCII {
+			if got := cutWords(text, cutASCII); !reflect.DeepEqual(got, want) {
+				t.Errorf("%s:%d: ASCII segmenter: got %q, want %q", tokWordBreakTest, lineNo, got, want)
+			}
+			ascii++
+		}
+	}
+	if err := sc.Err(); err != nil {
+		t.Fatal(err)
+	}
+	// WordBreakTest-15.0.0.txt has 1823 test lines, 477 of them ASCII.
+	if general < 1800 || ascii < 470 {
+		t.Fatalf("only %d test lines (%d ASCII) in %s", general, ascii, tokWordBreakTest)
+	}
+	t.Logf("Unicode %s WordBreakTest: %d lines uniseg and hybrid segmenters, %d lines ASCII segmenter", tokUnicodeVersion, general, ascii)
+}
+
+// tokNFKCCasefold reads the NFKC_Casefold (NFKC_CF) mapping from
+// DerivedNormalizationProps.txt; code points not listed map to themselves.
+func tokNFKCCasefold(t *testing.T) map[rune][]rune {
+	f := tokReference(t, tokDerivedNormProps)
+	m := map[rune][]rune{}
+	sc := bufio.NewScanner(f)
+	for sc.Scan() {
+		line, _, _ := strings.Cut(sc.Text(), "#")
+		parts := strings.Split(line, ";")
+		if len(parts) != 3 || strings.TrimSpace(parts[1]) != "NFKC_CF" {
+			continue
+		}
+		lo, hi, _ := strings.Cut(strings.TrimSpace(parts[0]), "..")
+		if hi == "" {
+			hi = lo
+		}
+		a, err1 := strconv.ParseUint(lo, 16, 32)
+		b, err2 := strconv.ParseUint(hi, 16, 32)
+		if err1 != nil || err2 != nil {
+			t.Fatalf("bad NFKC_CF line %q", sc.Text())
+		}
+		to := []rune{}
+		for _, h := range strings.Fields(parts[2]) {
+			r, err := strconv.ParseUint(h, 16, 32)
+			if err != nil {
+				t.Fatalf("bad NFKC_CF line %q", sc.Text())
+			}
+			to = append(to, rune(r))
+		}
+		for r := a; r <= b; r++ {
+			m[rune(r)] = to
+		}
+	}
+	if err := sc.Err(); err != nil {
+		t.Fatal(err)
+	}
+	if len(m) < 5000 {
+		t.Fatalf("only %d NFKC_CF mappings read", len(m))
+	}
+	return m
+}
+
+// tokKeptIgnorable are the characters NFKC_Casefold removes but the
+// tokenizer keeps (see the Tokenizer doc), and tokApostrophe those it maps
+// to "'"; both are deliberate differences from toNFKC_Casefold.
+func tokKeptIgnorable(r rune) bool { return r == 0x200B || r == 0x200D || r >= 0xE0020 && r <= 0xE007F }
+func tokApostrophe(r rune) bool    { return r == 0x2018 || r == 0x2019 }
+
+// toNFKCCasefold is Unicode's definition (Unicode 15.0.0 core
+// specification, section 3.13, D145 and the NFKC_Casefold property): map
+// each character by NFKC_CF, then normalise to NFC.
+func toNFKCCasefold(m map[rune][]rune, s []rune) string {
+	var out []rune
+	for _, r := range s {
+		switch to, ok := m[r]; {
+		case tokKeptIgnorable(r):
+			out = append(out, r)
+		case tokApostrophe(r):
+			out = append(out, '\'')
+		case ok:
+			out = append(out, to...)
+		default:
+			out = append(out, r)
+		}
+	}
+	return norm.NFC.String(string(out))
+}
+
+// TestTokenizeNFKCCasefold checks the clean-up and normalisation steps
+// against Unicode's NFKC_Casefold mapping (DerivedNormalizationProps.txt,
+// Unicode 15.0.0): every code point alone, and random strings of
+// characters that compose, decompose, fold or vanish.
+func TestTokenizeNFKCCasefold(t *testing.T) {
+	m := tokNFKCCasefold(t)
+	tk := NewTokenizer(TokenizerSettings{})
+	var ts Tokens
+	bad := 0
+	for r := rune(0); r <= utf8.MaxRune; r++ {
+		if r >= 0xD800 && r <= 0xDFFF {
+			continue
+		}
+		in := []rune{r}
+		want := toNFKCCasefold(m, in)
+		if got := string(tk.normalize(&ts, []byte(string(in)))); got != want {
+			if bad++; bad <= 20 {
+				t.Errorf("U+%04X: normalised to %+q, NFKC_Casefold gives %+q", r, got, want)
+			}
+		}
+	}
+	// Strings: characters from the mapping's interesting parts.
+	var pool []rune
+	for r := range m {
+		pool = append(pool, r)
+	}
+	pool = append(pool, 'a', 'e', 'o', 'A', 'I', ' ', '1', 0x301, 0x308, 0x327, 0x1100, 0x1161, 0x11A8, 0xAC00, 0x3099, 0x304B, 0x200D, 0x2019, 0xE0067)
+	rng := rand.New(rand.NewPCG(1, 2))
+	for range tokRounds(20000) {
+		in := make([]rune, 1+rng.IntN(8))
+		for j := range in {
+			in[j] = pool[rng.IntN(len(pool))]
+			if in[j] >= 0xD800 && in[j] <= 0xDFFF {
+				in[j] = 'x'
+			}
+		}
+		want := toNFKCCasefold(m, in)
+		if got := string(tk.normalize(&ts, []byte(string(in)))); got != want {
+			if bad++; bad <= 20 {
+				t.Errorf("%+q: normalised to %+q, toNFKC_Casefold gives %+q", string(in), got, want)
+			}
+		}
+	}
+	if bad > 0 {
+		t.Errorf("%d mismatches", bad)
+	}
+}
+
+type tokenizeCase struct {
+	name string
+	set  TokenizerSettings
+	in   string
+	want []string
+}
+
+var (
+	tokDefault = TokenizerSettings{}
+	tokPunct   = TokenizerSettings{KeepPunct: true}
+	tokRaw     = TokenizerSettings{NoPlaceholders: true}
+)
+
+// tokenizeCases: expected tokens follow from the rules in the Tokenizer
+// doc comment and the standards named per group. Invented ferry-service
+// text; the .example domain is reserved for examples (RFC 2606).
+var tokenizeCases = []tokenizeCase{
+	// Placeholders: URL syntax per RFC 3986 (scheme "://" authority path
+	// "?" query "#" fragment); our own rules for where a URL ends.
+	{"url", tokDefault, "timetable at https://ferry.example/routes/varlo-osk?day=mon&dir=out#top now", []string{"timetable", "at", PlaceholderURL, "now"}},
+	{"url upper case", tokDefault, "HTTPS://FERRY.EXAMPLE/A", []string{PlaceholderURL}},
+	{"url trailing stop", tokDefault, "see http://ferry.example/a.", []string{"see", PlaceholderURL}},
+	{"url trailing stop kept punct", tokPunct, "see http://ferry.example/a.", []string{"see", PlaceholderURL, "."}},
+	{"url in brackets", tokPunct, "(map: https://isles.example/wiki/Osk_(island)).", []string{"(", "map", ":", PlaceholderURL, ")", "."}},
+	{"url with port and user", tokDefault, "ftp://crew@depot.example:2121/logs", []string{PlaceholderURL}},
+	{"url www", tokDefault, "book on www.ferry.example/tickets, thanks", []string{"book", "on", PlaceholderURL, "thanks"}},
+	{"url www inside word", tokDefault, "awww.nice", []string{"awww.nice"}},
+	{"url after label", tokDefault, "link:https://ferry.example", []string{"link", PlaceholderURL}},
+	{"url needs host", tokPunct, "http:// nothing", []string{"http", ":", "/", "/", "nothing"}},
+	{"url one-letter scheme", tokDefault, "c://dir", []string{"c", "dir"}},
+	{"url unicode path", tokDefault, "https://ferry.example/höfn gone", []string{PlaceholderURL, "gone"}},
+	{"url stops at ideographic stop", tokDefault, "https://ferry.example/a。好", []string{PlaceholderURL, "好"}},
+	{"url off", tokRaw, "https://ferry.example/a?b=1", []string{"https", "ferry.example", "a", "b", "=", "1"}},
+	// E-mail addresses: a subset of RFC 5322 addr-spec (dot-atom local
+	// part, host-name domain); quoted local parts are not recognised.
+	{"email", tokDefault, "write to mira.tolv+late@harbour.example today", []string{"write", "to", PlaceholderEmail, "today"}},
+	{"email trailing stop", tokPunct, "mail crew_7@osk-ferries.example.", []string{"mail", PlaceholderEmail, "."}},
+	{"email subdomain", tokDefault, "a.b@mail.isles.example", []string{PlaceholderEmail}},
+	{"email needs dot", tokPunct, "ops@localhost", []string{"ops", "@", "localhost"}},
+	{"email numeric tld", tokPunct, "x@10.0.0.1", []string{"x", "@", PlaceholderNumber}},
+	{"email mailto", tokDefault, "mailto:desk@ferry.example", []string{"mailto", PlaceholderEmail}},
+	{"email off", tokRaw, "desk@ferry.example", []string{"desk", "ferry.example"}},
+	// Handles.
+	{"handle", tokDefault, "thanks @skipper_orla!", []string{"thanks", PlaceholderHandle}},
+	{"handle start", tokDefault, "@osk_port the 9 is late", []string{PlaceholderHandle, "the", PlaceholderNumber, "is", "late"}},
+	{"handle federated", tokDefault, "@orla@isles.example hi", []string{PlaceholderHandle, "hi"}},
+	{"handle digits only", tokPunct, "meet @10", []string{"meet", "@", PlaceholderNumber}},
+	{"handle in word", tokPunct, "a@b", []string{"a", "@", "b"}},
+	{"handle off", tokRaw, "@skipper_orla", []string{"skipper_orla"}},
+	// Numbers: UAX #29 rules WB11/WB12 keep MidNum (",", ";") and
+	// MidNumLet (".", "'") between digits, WB13a/b keep "_".
+	{"integer", tokDefault, "pier 7 of 12", []string{"pier", PlaceholderNumber, "of", PlaceholderNumber}},
+	{"decimal", tokDefault, "3.14 and 0.5", []string{PlaceholderNumber, "and", PlaceholderNumber}},
+	{"thousands", tokDefault, "1,000.5 fares", []string{PlaceholderNumber, "fares"}},
+	{"digit groups", tokDefault, "1'000 and 1_000", []string{PlaceholderNumber, "and", PlaceholderNumber}},
+	{"time", tokPunct, "leaves 10:30", []string{"leaves", PlaceholderNumber, ":", PlaceholderNumber}},
+	{"negative and percent", tokPunct, "-5 50%", []string{"-", PlaceholderNumber, PlaceholderNumber, "%"}},
+	{"currency", tokDefault, "$20 or €15", []string{"$", PlaceholderNumber, "or", "€", PlaceholderNumber}},
+	{"digits with letters", tokDefault, "10am 2nd x2", []string{"10am", "2nd", "x2"}},
+	{"trailing stop", tokPunct, "gate 4.", []string{"gate", PlaceholderNumber, "."}},
+	{"fullwidth digits", tokDefault, "１２３", []string{PlaceholderNumber}},
+	{"arabic-indic digits", tokDefault, "٣٤", []string{PlaceholderNumber}},
+	{"numbers off", tokRaw, "1,000.5 at 10:30", []string{"1,000.5", "at", "10", "30"}},
+	// Case folding: CaseFolding.txt (Unicode 15.0.0) status C and F.
+	{"fold ascii", tokDefault, "Ferry FERRY ferry", []string{"ferry", "ferry", "ferry"}},
+	{"fold sharp s", tokDefault, "Straße STRASSE ẞ", []string{"strasse", "strasse", "ss"}}, // 00DF; F; 0073 0073 and 1E9E; F; 0073 0073
+	{"fold dotted capital I", tokDefault, "İzmir", []string{"i\u0307zmir"}},                // 0130; F; 0069 0307
+	{"fold capital I not turkic", tokDefault, "ISLAND ılık", []string{"island", "ılık"}},   // 0049; C; 0069 (the T entry is not used); ı has no folding
+	{"fold greek sigma", tokDefault, "ΣΟΦΟΣ σοφος", []string{"σοφοσ", "σοφοσ"}},            // 03A3; C; 03C3 and 03C2; C; 03C3
+	{"fold kelvin", tokDefault, "5\u212A", []string{"5k"}},                                 // 212A; C; 006B
+	{"fold cherokee", tokDefault, "\u13A0\uAB70", []string{"\u13A0\u13A0"}},                // AB70; C; 13A0 (small folds to capital; golang/go#46101)
+	{"fold then compose", tokDefault, "\u01F0 J\u030C", []string{"\u01F0", "\u01F0"}},      // 01F0; F; 006A 030C, recomposed by NFKC
+	// NFKC: decompositions in UnicodeData.txt, composition per UAX #15.
+	{"nfkc fullwidth", tokDefault, "ＦＥＲＲＹ ｏｋ", []string{"ferry", "ok"}},                          // FF26;<wide> 0046 ...
+	{"nfkc fullwidth punct", tokPunct, "ｏｋ．", []string{"ok", "."}},                               // FF0E;<wide> 002E
+	{"nfkc fullwidth handle", tokDefault, "＠ｏｒｌａ", []string{PlaceholderHandle}},                  // FF20;<wide> 0040
+	{"nfkc ligature", tokDefault, "ﬁne ﬂow", []string{"fine", "flow"}},                           // FB01;<compat> 0066 0069
+	{"nfkc compose", tokDefault, "cafe\u0301 café", []string{"café", "café"}},                    // 0065 0301 -> 00E9
+	{"nfkc circled", tokDefault, "① ²", []string{PlaceholderNumber, PlaceholderNumber}},          // 2460;<circle> 0031, 00B2;<super> 0032
+	{"nfkc square", tokDefault, "12㎞", []string{"12km"}},                                         // 339E;<square> 006B 006D
+	{"nfkc nbsp and ideographic space", tokDefault, "a\u00A0b\u3000c", []string{"a", "b", "c"}},  // 00A0;<noBreak> 0020, 3000;<wide> 0020
+	{"nfkc hangul", tokDefault, "\u1112\u1161\u11AB", []string{"\uD55C"}},                        // conjoining jamo compose to 한
+	{"soft hyphen removed", tokDefault, "ferry\u00ADboat", []string{"ferryboat"}},                // 00AD; NFKC_CF; (empty)
+	{"curly apostrophe", tokDefault, "can\u2019t \u2018quote\u2019", []string{"can't", "quote"}}, // our mapping
+	// Emoji and symbols: UAX #29 WB3c (ZWJ × Extended_Pictographic), WB4
+	// (modifiers and variation selectors are Extend), WB15/WB16 (regional
+	// indicator pairs).
+	{"emoji", tokDefault, "great trip 😀😀", []string{"great", "trip", "😀", "😀"}},
+	{"emoji skin tone", tokDefault, "👍🏽 ok", []string{"👍🏽", "ok"}},
+	{"emoji zwj family", tokDefault, "👨\u200d👩\u200d👧 aboard", []string{"👨\u200d👩\u200d👧", "aboard"}},
+	{"emoji zwj profession", tokDefault, "🧑🏽\u200d✈\ufe0f", []string{"🧑🏽\u200d✈"}},
+	{"emoji flags", tokDefault, "🇬🇷🇮🇹🇫", []string{"🇬🇷", "🇮🇹", "🇫"}},
+	{"emoji tag flag", tokDefault, "\U0001F3F4\U000E0067\U000E0062\U000E0073\U000E0063\U000E0074\U000E007F!", []string{"\U0001F3F4\U000E0067\U000E0062\U000E0073\U000E0063\U000E0074\U000E007F"}},
+	{"emoji variation selector", tokDefault, "❤️ ❤", []string{"❤", "❤"}},
+	{"emoji keycap", tokDefault, "1️⃣ #️⃣", []string{"1\u20e3", "#\u20e3"}},
+	{"symbols", tokDefault, "a+b=c < d ~ ©", []string{"a", "+", "b", "=", "c", "<", "d", "~", "©"}},
+	{"private use", tokDefault, "\uE000", []string{"\uE000"}},
+	// CJK: UAX #29 has no rule joining ideographs or hiragana (WB999);
+	// katakana joins (WB13); hangul syllables are ALetter (WB5).
+	{"cjk", tokDefault, "東京へ行く", []string{"東", "京", "へ", "行", "く"}},
+	{"katakana", tokDefault, "フェリーに乗る", []string{"フェリー", "に", "乗", "る"}},
+	{"hangul", tokDefault, "배를 타요", []string{"배를", "타요"}},
+	{"cjk punct", tokPunct, "好。", []string{"好", "。"}},
+	// Punctuation, whitespace, controls.
+	{"punct dropped", tokDefault, "Hello, world... (really?!)", []string{"hello", "world", "really"}},
+	{"punct kept", tokPunct, "Hi, all...", []string{"hi", ",", "all", ".", ".", "."}},
+	{"apostrophe inside", tokDefault, "don't 'quote'", []string{"don't", "quote"}},
+	{"whitespace", tokPunct, " \t\r\n\v\f  a \u2003 b\u0085", []string{"a", "b"}},
+	{"controls", tokPunct, "a\x00b\x7fc\u200bd", []string{"a", "b", "c", "d"}},
+	{"lone marks", tokPunct, "\u0301 \u0308", nil},
+	{"empty", tokDefault, "", nil},
+	{"only spaces", tokDefault, "   ", nil},
+	// Invalid UTF-8: each run of bad bytes becomes one U+FFFD, a symbol.
+	{"invalid utf-8", tokDefault, "ab\xffcd \xc3\x28 \xe2\x82", []string{"ab", "\uFFFD", "cd", "\uFFFD", "\uFFFD"}},
+	{"invalid run", tokDefault, "\xff\xfe\xfd", []string{"\uFFFD"}},
+	// Limit: Settings().Limit() tokens, placeholders counted.
+	{"limit", TokenizerSettings{MaxTokens: 3}, "one two three four five", []string{"one", "two", "three"}},
+	{"limit placeholder", TokenizerSettings{MaxTokens: 2}, "see https://ferry.example now", []string{"see", PlaceholderURL}},
+	{"limit number", TokenizerSettings{MaxTokens: 1}, "7 8 9", []string{PlaceholderNumber}},
+}
+
+func TestTokenize(t *testing.T) {
+	for _, c := range tokenizeCases {
+		t.Run(c.name, func(t *testing.T) {
+			got := tokenizeStrings(NewTokenizer(c.set), c.in)
+			if !reflect.DeepEqual(got, c.want) && !(len(got) == 0 && len(c.want) == 0) {
+				t.Errorf("Tokenize(%+q) = %+q, want %+q", c.in, got, c.want)
+			}
+		})
+	}
+}
+
+// TestTokenizeDefaultLimit: DefaultMaxTokens (400) tokens at most.
+func TestTokenizeDefaultLimit(t *testing.T) {
+	text := strings.Repeat("sail 7 https://ferry.example @orla ", 300)
+	tk := NewTokenizer(TokenizerSettings{})
+	for _, general := range []bool{false, true} {
+		var ts Tokens
+		if general {
+			tk.tokenizeGeneral(&ts, []byte(text), cutUniseg)
+		} else {
+			tk.Tokenize(&ts, []byte(text))
+		}
+		if ts.Len() != DefaultMaxTokens {
+			t.Errorf("general=%v: %d tokens, want %d", general, ts.Len(), DefaultMaxTokens)
+		}
+	}
+}
+
+// tokSettings are the settings the differential tests compare under.
+var tokSettings = []TokenizerSettings{
+	{}, {KeepPunct: true}, {NoPlaceholders: true}, {KeepPunct: true, NoPlaceholders: true}, {MaxTokens: 3}, {KeepPunct: true, MaxTokens: 1},
+}
+
+// tokFragments build random ASCII text rich in the cases the segmenter,
+// the placeholders and the classifier treat specially.
+var tokFragments = []string{
+	"a", "B", "z", "0", "9", "42", " ", "  ", ".", ",", ";", ":", "'", "\"", "_", "-", "@", "/", "//", "?", "#",
+	"\r", "\n", "\r\n", "\t", "\v", "\f", "\x00", "\x7f", "(", ")", "[", "]", "$", "%", "+", "<", ">", "!", "&", "=",
+	"*", "~", "^", "`", "|", "{", "}", "\\", "www.", "WWW.", "http://", "https://", "x.example", "ferry", "Osk",
+	"mailto:", "1,000.5", "10:30", "can't", "e.g.", "@@",
+}
+
+func tokRandomASCII(rng *rand.Rand) string {
+	var sb strings.Builder
+	for n := rng.IntN(12); n >= 0; n-- {
+		sb.WriteString(tokFragments[rng.IntN(len(tokFragments))])
+	}
+	return sb.String()
+}
+
+// tokCompareASCII reports how the fast path differs from the general path
+// on ASCII text s, or "" when they agree: segments and their kinds, and
+// tokens under every tokSettings.
+func tokCompareASCII(s []byte) string {
+	if got, want := cutWords(s, cutASCII), cutWords(s, cutUniseg); !reflect.DeepEqual(got, want) {
+		return fmt.Sprintf("segments %+q: ASCII %q, uniseg %q", s, got, want)
+	}
+	for rest := s; len(rest) > 0; {
+		n, kind := asciiWord(rest)
+		if want, lead := classify(rest[:n]); kind != want || kind != segDrop && lead != 0 {
+			return fmt.Sprintf("segment %+q: asciiWord says %d, classify %d (lead %d)", rest[:n], kind, want, lead)
+		}
+		rest = rest[n:]
+	}
+	var fast, general Tokens
+	for _, set := range tokSettings {
+		tk := NewTokenizer(set)
+		tk.tokenizeASCII(&fast, s)
+		for _, mode := range []int{cutUniseg, cutHybrid} {
+			tk.tokenizeGeneral(&general, s, mode)
+			if got, want := tokStrings(&fast), tokStrings(&general); !reflect.DeepEqual(got, want) {
+				return fmt.Sprintf("%+v %+q: fast %q, general (mode %d) %q", set, s, got, mode, want)
+			}
+		}
+	}
+	return ""
+}
+
+// tokCompareHybrid reports how the hybrid segmenter differs from uniseg
+// alone on text s, or "" when they agree: segments, and tokens under every
+// tokSettings.
+func tokCompareHybrid(s []byte) string {
+	if got, want := cutWords(s, cutHybrid), cutWords(s, cutUniseg); !reflect.DeepEqual(got, want) {
+		return fmt.Sprintf("segments %+q: hybrid %q, uniseg %q", s, got, want)
+	}
+	var a, b Tokens
+	for _, set := range tokSettings {
+		tk := NewTokenizer(set)
+		tk.tokenizeGeneral(&a, s, cutHybrid)
+		tk.tokenizeGeneral(&b, s, cutUniseg)
+		if got, want := tokStrings(&a), tokStrings(&b); !reflect.DeepEqual(got, want) {
+			return fmt.Sprintf("%+v %+q: hybrid %q, uniseg %q", set, s, got, want)
+		}
+	}
+	return ""
+}
+
+// tokNonASCII are fragments next to which the hybrid segmenter must hand
+// over to uniseg: Extend, Format and ZWJ (WB4), letters and digits of
+// other scripts (WB5 to WB13), Hebrew letters (WB7a to WB7c), katakana
+// (WB13), regional indicators (WB15, WB16), pictographs (WB3c) and
+// non-ASCII spaces (WB3d).
+var tokNonASCII = []string{
+	"é", "́", "̈", "‍", "​", "­", "؀", "ß", "İ", "Ω", "٣", "５", "ａ", "א", "ד",
+	"カ", "ー", "東", "🇦", "🇧", "👍", "🏽", "❤", " ", " ", "　", "", " ", "’", "️", "ÿ", "Ã",
+	"．", "：", "，", "＠", "󠁧",
+}
+
+// TestTokenizeHybridDifferential: the hybrid segmenter the tokenizer uses
+// cuts mixed text exactly as uniseg alone, and gives the same tokens.
+func TestTokenizeHybridDifferential(t *testing.T) {
+	rng := rand.New(rand.NewPCG(5, 6))
+	for range tokRounds(10000) {
+		var sb strings.Builder
+		for n := rng.IntN(10); n >= 0; n-- {
+			if rng.IntN(2) == 0 {
+				sb.WriteString(tokNonASCII[rng.IntN(len(tokNonASCII))])
+			} else {
+				sb.WriteString(tokFragments[rng.IntN(len(tokFragments))])
+			}
+		}
+		if msg := tokCompareHybrid([]byte(sb.String())); msg != "" {
+			t.Fatal(msg)
+		}
+	}
+	for _, c := range tokenizeCases {
+		if msg := tokCompareHybrid([]byte(c.in)); msg != "" {
+			t.Fatal(msg)
+		}
+	}
+}
+
+// TestTokenizeASCIIDifferential: on ASCII text the fast path (own
+// segmenter, no normalisation) gives the general path's tokens, and its
+// segmenter gives uniseg's segments.
+func TestTokenizeASCIIDifferential(t *testing.T) {
+	var inputs []string
+	for _, c := range tokenizeCases {
+		if isASCII([]byte(c.in)) {
+			inputs = append(inputs, c.in)
+		}
+	}
+	rng := rand.New(rand.NewPCG(3, 4))
+	for range tokRounds(8000) {
+		inputs = append(inputs, tokRandomASCII(rng))
+	}
+	for c := range 128 {
+		inputs = append(inputs, string(rune(c)), "a"+string(rune(c))+"b", "1"+string(rune(c))+"2")
+	}
+	for _, in := range inputs {
+		if msg := tokCompareASCII([]byte(in)); msg != "" {
+			t.Fatal(msg)
+		}
+	}
+}
+
+// TestTokenizeAllocs: no allocation per call after warm-up on ASCII text.
+func TestTokenizeAllocs(t *testing.T) {
+	tk := NewTokenizer(TokenizerSettings{})
+	var ts Tokens
+	for _, lines := range [][]string{tokBenchASCII, tokBenchUnicode} {
+		for _, l := range lines {
+			tk.Tokenize(&ts, []byte(l))
+		}
+		i := 0
+		allocs := testing.AllocsPerRun(1000, func() {
+			tk.Tokenize(&ts, []byte(lines[i%len(lines)]))
+			i++
+		})
+		if isASCII([]byte(lines[0])) {
+			if allocs != 0 {
+				t.Errorf("ASCII lines: %.2f allocations per call, want 0", allocs)
+			}
+		} else {
+			t.Logf("non-ASCII lines: %.2f allocations per call", allocs)
+		}
+	}
+}
+
+// TestTokenizeConcurrent: one Tokenizer shared by goroutines, each with
+// its own Tokens, gives the sequential results (run with -race).
+func TestTokenizeConcurrent(t *testing.T) {
+	tk := NewTokenizer(TokenizerSettings{})
+	lines := append(append([]string(nil), tokBenchASCII...), tokBenchUnicode...)
+	want := make([][]string, len(lines))
+	for i, l := range lines {
+		want[i] = tokenizeStrings(tk, l)
+	}
+	var wg sync.WaitGroup
+	errs := make(chan string, 4)
+	for g := range 4 {
+		wg.Go(func() {
+			var ts Tokens
+			for rep := range 50 {
+				i := (rep*7 + g) % len(lines)
+				tk.Tokenize(&ts, []byte(lines[i]))
+				if got := tokStrings(&ts); !reflect.DeepEqual(got, want[i]) {
+					errs <- fmt.Sprintf("line %d: %q, want %q", i, got, want[i])
+					return
+				}
+			}
+		})
+	}
+	wg.Wait()
+	close(errs)
+	for e := range errs {
+		t.Error(e)
+	}
+}
+
+func ExampleTokenizer_Tokenize() {
+	tk := NewTokenizer(TokenizerSettings{})
+	var ts Tokens
+	tk.Tokenize(&ts, []byte("Is the 10:30 ferry to Osk late? Ask @harbour_desk or see https://ferry.example/live 🙏"))
+	for i := 0; i < ts.Len(); i++ {
+		fmt.Printf("%s ", ts.At(i))
+	}
+	fmt.Println()
+	// Output: is the <num> <num> ferry to osk late ask <handle> or see <url> 🙏
+}
