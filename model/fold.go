@@ -123,11 +123,15 @@ func (m *Model) checkFold() error {
 	return nil
 }
 
-// forwardFolded pools every width's features from the fold tables.
-func (p *Predictor) forwardFolded(rows []int32) {
+// forwardFolded pools every width's features from the fold tables, and
+// their winners if withWin is set.
+func (p *Predictor) forwardFolded(rows []int32, withWin bool) {
 	f := p.m.Config.Filters
 	for i, t := range p.m.Fold {
-		mx, win := p.feat[i*f:(i+1)*f], p.win[i*f:(i+1)*f]
+		mx, win := p.feat[i*f:(i+1)*f], []int32(nil)
+		if withWin {
+			win = p.win[i*f : (i+1)*f]
+		}
 		b := p.m.Convs[i].B
 		if t.F16 != nil {
 			p.k.foldF16(t.F16, t.Width, f, rows, b, mx, win, p.acc)

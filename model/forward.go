@@ -20,6 +20,8 @@ type Predictor struct {
 	toks   Tokens
 	rows   []int32
 	direct bool
+	last   []int32 // the last folded text, for Winners
+	winOK  bool    // win is up to date
 
 	feat   []float32 // pooled features, Config.Features()
 	win    []int32   // winning window start per feature, or -1
@@ -55,6 +57,7 @@ func (m *Model) NewPredictor() *Predictor {
 	}
 	limit := m.Tokenizer.Limit()
 	p.rows = make([]int32, 0, limit)
+	p.last = make([]int32, 0, limit)
 	return p
 }
 
@@ -87,9 +90,15 @@ func (p *Predictor) PredictRows(rows []int32) []float32 {
 		}
 	}
 	if p.m.Fold != nil && !p.direct {
-		p.forwardFolded(rows)
+		// Winners are found on demand: the tagger never asks, and
+		// tracking them costs the kernel two more instructions per
+		// vector and position.
+		p.last = append(p.last[:0], rows...)
+		p.forwardFolded(rows, false)
+		p.winOK = false
 	} else {
 		p.forwardDirect(rows)
+		p.winOK = true
 	}
 	p.dense()
 	softmax(p.probs, p.logits)
@@ -111,7 +120,17 @@ func (p *Predictor) Features() []float32 { return p.feat }
 // positive pre-activation the feature is 0 after ReLU, no window
 // contributed anything, and the winner is -1, so an explanation never
 // credits an n-gram with a feature it did not raise.
-func (p *Predictor) Winners() []int32 { return p.win }
+//
+// On the folded path the winners are computed on the first call after a
+// prediction, by a second pass over the text that repeats the same
+// additions (so Features is unchanged).
+func (p *Predictor) Winners() []int32 {
+	if !p.winOK {
+		p.forwardFolded(p.last, true)
+		p.winOK = true
+	}
+	return p.win
+}
 
 // forwardDirect computes the features from the embeddings and filters.
 func (p *Predictor) forwardDirect(rows []int32) {

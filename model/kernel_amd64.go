@@ -43,28 +43,34 @@ func init() {
 }
 
 //go:noescape
-func foldF32AVX512x4(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32)
+func foldF32AVX512x8(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
 
 //go:noescape
-func foldF32AVX512x1(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32)
+func foldF16AVX512x8(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
 
 //go:noescape
-func foldF16AVX512x4(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32)
+func foldF32AVX512x4(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
 
 //go:noescape
-func foldF16AVX512x1(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32)
+func foldF32AVX512x1(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
 
 //go:noescape
-func foldF32AVX2x4(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32)
+func foldF16AVX512x4(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
 
 //go:noescape
-func foldF32AVX2x1(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32)
+func foldF16AVX512x1(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
 
 //go:noescape
-func foldF16AVX2x4(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32)
+func foldF32AVX2x4(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
 
 //go:noescape
-func foldF16AVX2x1(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32)
+func foldF32AVX2x1(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
+
+//go:noescape
+func foldF16AVX2x4(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
+
+//go:noescape
+func foldF16AVX2x1(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
 
 //go:noescape
 func dotAVX512(a, b *float32, n int) float32
@@ -91,11 +97,15 @@ func foldAVX512F32(tab []float32, w, f int, rows []int32, bias, mx []float32, wi
 	}
 	checkFoldArgs(len(tab), w, f, rows, bias, mx, win)
 	n, rb, tb := len(rows), w*f*4, f*4
-	chunks(f, 16, func(c int, four bool) {
-		if four {
-			foldF32AVX512x4(&tab[c], &rows[0], n, w, rb, tb, &bias[c], &mx[c], &win[c])
-		} else {
-			foldF32AVX512x1(&tab[c], &rows[0], n, w, rb, tb, &bias[c], &mx[c], &win[c])
+	chunkPlan(f, 16, true, func(c, v int, masks uint64) {
+		t, r, b, m, wp := &tab[c], &rows[0], &bias[c], &mx[c], winAt(win, c)
+		switch v {
+		case 8:
+			foldF32AVX512x8(t, r, n, w, rb, tb, b, m, wp, masks)
+		case 4:
+			foldF32AVX512x4(t, r, n, w, rb, tb, b, m, wp, 0)
+		default:
+			foldF32AVX512x1(t, r, n, w, rb, tb, b, m, wp, 0)
 		}
 	})
 }
@@ -107,11 +117,15 @@ func foldAVX512F16(tab []uint16, w, f int, rows []int32, bias, mx []float32, win
 	}
 	checkFoldArgs(len(tab), w, f, rows, bias, mx, win)
 	n, rb, tb := len(rows), w*f*2, f*2
-	chunks(f, 16, func(c int, four bool) {
-		if four {
-			foldF16AVX512x4(&tab[c], &rows[0], n, w, rb, tb, &bias[c], &mx[c], &win[c])
-		} else {
-			foldF16AVX512x1(&tab[c], &rows[0], n, w, rb, tb, &bias[c], &mx[c], &win[c])
+	chunkPlan(f, 16, true, func(c, v int, masks uint64) {
+		t, r, b, m, wp := &tab[c], &rows[0], &bias[c], &mx[c], winAt(win, c)
+		switch v {
+		case 8:
+			foldF16AVX512x8(t, r, n, w, rb, tb, b, m, wp, masks)
+		case 4:
+			foldF16AVX512x4(t, r, n, w, rb, tb, b, m, wp, 0)
+		default:
+			foldF16AVX512x1(t, r, n, w, rb, tb, b, m, wp, 0)
 		}
 	})
 }
@@ -123,11 +137,12 @@ func foldAVX2F32(tab []float32, w, f int, rows []int32, bias, mx []float32, win 
 	}
 	checkFoldArgs(len(tab), w, f, rows, bias, mx, win)
 	n, rb, tb := len(rows), w*f*4, f*4
-	chunks(f, 8, func(c int, four bool) {
-		if four {
-			foldF32AVX2x4(&tab[c], &rows[0], n, w, rb, tb, &bias[c], &mx[c], &win[c])
+	chunkPlan(f, 8, false, func(c, v int, _ uint64) {
+		t, r, b, m, wp := &tab[c], &rows[0], &bias[c], &mx[c], winAt(win, c)
+		if v == 4 {
+			foldF32AVX2x4(t, r, n, w, rb, tb, b, m, wp, 0)
 		} else {
-			foldF32AVX2x1(&tab[c], &rows[0], n, w, rb, tb, &bias[c], &mx[c], &win[c])
+			foldF32AVX2x1(t, r, n, w, rb, tb, b, m, wp, 0)
 		}
 	})
 }
@@ -139,20 +154,29 @@ func foldAVX2F16(tab []uint16, w, f int, rows []int32, bias, mx []float32, win [
 	}
 	checkFoldArgs(len(tab), w, f, rows, bias, mx, win)
 	n, rb, tb := len(rows), w*f*2, f*2
-	chunks(f, 8, func(c int, four bool) {
-		if four {
-			foldF16AVX2x4(&tab[c], &rows[0], n, w, rb, tb, &bias[c], &mx[c], &win[c])
+	chunkPlan(f, 8, false, func(c, v int, _ uint64) {
+		t, r, b, m, wp := &tab[c], &rows[0], &bias[c], &mx[c], winAt(win, c)
+		if v == 4 {
+			foldF16AVX2x4(t, r, n, w, rb, tb, b, m, wp, 0)
 		} else {
-			foldF16AVX2x1(&tab[c], &rows[0], n, w, rb, tb, &bias[c], &mx[c], &win[c])
+			foldF16AVX2x1(t, r, n, w, rb, tb, b, m, wp, 0)
 		}
 	})
+}
+
+// winAt is &win[c], or nil when winners are not tracked.
+func winAt(win []int32, c int) *int32 {
+	if win == nil {
+		return nil
+	}
+	return &win[c]
 }
 
 // checkFoldArgs guards the assembly's memory accesses: the slices must be
 // long enough for f columns and the table for whole rows. Row ids are
 // checked too: the assembly trusts them.
 func checkFoldArgs(tabLen, w, f int, rows []int32, bias, mx []float32, win []int32) {
-	if len(rows) == 0 || w < 1 || len(bias) < f || len(mx) < f || len(win) < f || tabLen%(w*f) != 0 {
+	if len(rows) == 0 || w < 1 || len(bias) < f || len(mx) < f || win != nil && len(win) < f || tabLen%(w*f) != 0 {
 		panic("model: bad fold kernel arguments")
 	}
 	nr := uint32(tabLen / (w * f))

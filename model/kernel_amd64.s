@@ -2,21 +2,32 @@
 
 #include "textflag.h"
 
-// Folded convolution kernels. Each processes one chunk of columns (4 or 1
-// vectors of filters) of one width's table for a whole text:
+// Folded convolution kernels. Each processes one chunk of columns (1, 4 or
+// 8 vectors of filters) of one width's table for a whole text:
 //
-//	func foldXXX(tab *T, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32)
+//	func foldT_ISAxV(tab *T, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
 //
 // tab, bias, mx and win point at the chunk's first column; rowBytes is the
 // byte size of one row's w taps, tapBytes of one tap. For each position p
 // the taps k < min(w, n-p) are added to the bias in order (as the generic
-// code does, so results are bit-identical), then the running maximum and
-// its first position are kept with a strict greater-than against a start of
-// 0 and -1, which is ReLU and max-over-time in one step.
+// code does, so results are bit-identical), then the running maximum is
+// kept against a start of 0, which is ReLU and max-over-time in one step.
+// With win non-nil the first position reaching each maximum is kept too
+// (strict greater-than, start -1); with win nil a plain VMAXPS does, which
+// returns its second source on equality exactly like the strict compare.
+//
+// The x8 kernels (AVX-512 only) cover 5..8 vectors in one pass: vectors
+// 0-3 are whole, vectors 4-7 use the lane masks in masks (16 bits each,
+// low first) for every load and store, so no byte past the chunk is read
+// (EVEX masking suppresses faults on masked lanes) or written.
 //
 // Registers: DI table chunk base, R8 rows, BX n, R9 w, R10 rowBytes,
-// R11 tapBytes, CX position, DX taps left, SI &rows[p+k], R12 tap base,
-// AX row byte offset.
+// R11 tapBytes, R13 bias, CX position, DX taps left, SI &rows[p+k],
+// R12 tap base, AX row byte offset.
+// AVX-512: Z0-Z7 sums, Z8-Z15 maxima, Z16-Z23 winners, Z24 position,
+// Z25 ones, Z26-Z29 widened halves, K1 compare, K4-K7 lane masks.
+// AVX2: Y0-Y3 sums, Y4-Y7 maxima, Y8-Y11 winners, Y12 position, Y13 ones,
+// Y14 widened halves, Y15 compare mask.
 
 #define FOLD_ARGS \
 	MOVQ tab+0(FP), DI; \
@@ -45,61 +56,163 @@
 	ADDQ R11, R12; \
 	DECQ DX
 
-// ---- AVX-512: Z0-Z3 sums, Z4-Z7 maxima, Z8-Z11 winners, Z12 position,
-// Z13 ones, Z14-Z17 bias, Z20-Z23 widened halves.
-
 #define Z_START \
-	VPXORD Z4, Z4, Z4; \
-	VPXORD Z5, Z5, Z5; \
-	VPXORD Z6, Z6, Z6; \
-	VPXORD Z7, Z7, Z7; \
-	VPTERNLOGD $0xff, Z8, Z8, Z8; \
-	VPTERNLOGD $0xff, Z9, Z9, Z9; \
-	VPTERNLOGD $0xff, Z10, Z10, Z10; \
-	VPTERNLOGD $0xff, Z11, Z11, Z11; \
-	VPXORD Z12, Z12, Z12; \
 	MOVL $1, AX; \
-	VPBROADCASTD AX, Z13; \
+	VPBROADCASTD AX, Z25; \
+	VPXORD Z24, Z24, Z24; \
 	XORQ CX, CX
 
-#define Z_UPD(acc, mx, win, k) \
-	VCMPPS $0x1e, mx, acc, k; \
-	VMOVAPS acc, k, mx; \
-	VMOVDQA32 Z12, k, win
+#define Y_START \
+	MOVL $1, AX; \
+	MOVQ AX, X13; \
+	VPBROADCASTD X13, Y13; \
+	VPXOR Y12, Y12, Y12; \
+	XORQ CX, CX
 
-#define Z_STORE4 \
-	MOVQ mx+56(FP), AX; \
-	VMOVUPS Z4, 0(AX); \
-	VMOVUPS Z5, 64(AX); \
-	VMOVUPS Z6, 128(AX); \
-	VMOVUPS Z7, 192(AX); \
-	MOVQ win+64(FP), AX; \
-	VMOVDQU32 Z8, 0(AX); \
-	VMOVDQU32 Z9, 64(AX); \
-	VMOVDQU32 Z10, 128(AX); \
-	VMOVDQU32 Z11, 192(AX)
+#define Z_MASKS \
+	MOVQ masks+72(FP), AX; \
+	KMOVW AX, K4; \
+	SHRQ $16, AX; \
+	KMOVW AX, K5; \
+	SHRQ $16, AX; \
+	KMOVW AX, K6; \
+	SHRQ $16, AX; \
+	KMOVW AX, K7
 
-#define Z_STORE1 \
-	MOVQ mx+56(FP), AX; \
-	VMOVUPS Z4, 0(AX); \
-	MOVQ win+64(FP), AX; \
-	VMOVDQU32 Z8, 0(AX)
-
-// func foldF32AVX512x4(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32)
-TEXT ·foldF32AVX512x4(SB), NOSPLIT, $0-72
+// func foldF32AVX512x8(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
+TEXT ·foldF32AVX512x8(SB), NOSPLIT, $0-80
 	FOLD_ARGS
-	VMOVUPS 0(R13), Z14
-	VMOVUPS 64(R13), Z15
-	VMOVUPS 128(R13), Z16
-	VMOVUPS 192(R13), Z17
+	Z_MASKS
+	VPXORD Z8, Z8, Z8
+	VPXORD Z9, Z9, Z9
+	VPXORD Z10, Z10, Z10
+	VPXORD Z11, Z11, Z11
+	VPXORD Z12, Z12, Z12
+	VPXORD Z13, Z13, Z13
+	VPXORD Z14, Z14, Z14
+	VPXORD Z15, Z15, Z15
+	VPTERNLOGD $0xff, Z16, Z16, Z16
+	VPTERNLOGD $0xff, Z17, Z17, Z17
+	VPTERNLOGD $0xff, Z18, Z18, Z18
+	VPTERNLOGD $0xff, Z19, Z19, Z19
+	VPTERNLOGD $0xff, Z20, Z20, Z20
+	VPTERNLOGD $0xff, Z21, Z21, Z21
+	VPTERNLOGD $0xff, Z22, Z22, Z22
+	VPTERNLOGD $0xff, Z23, Z23, Z23
+	Z_START
+
+f32z8pos:
+	POS_SETUP
+	VMOVUPS 0(R13), Z0
+	VMOVUPS 64(R13), Z1
+	VMOVUPS 128(R13), Z2
+	VMOVUPS 192(R13), Z3
+	VMOVUPS.Z 256(R13), K4, Z4
+	VMOVUPS.Z 320(R13), K5, Z5
+	VMOVUPS.Z 384(R13), K6, Z6
+	VMOVUPS.Z 448(R13), K7, Z7
+
+f32z8tap:
+	TAP_ROW
+	VADDPS 0(R12)(AX*1), Z0, Z0
+	VADDPS 64(R12)(AX*1), Z1, Z1
+	VADDPS 128(R12)(AX*1), Z2, Z2
+	VADDPS 192(R12)(AX*1), Z3, Z3
+	VADDPS 256(R12)(AX*1), Z4, K4, Z4
+	VADDPS 320(R12)(AX*1), Z5, K5, Z5
+	VADDPS 384(R12)(AX*1), Z6, K6, Z6
+	VADDPS 448(R12)(AX*1), Z7, K7, Z7
+	TAP_NEXT
+	JNZ f32z8tap
+
+	CMPQ win+64(FP), $0
+	JEQ f32z8max
+	VCMPPS $0x1e, Z8, Z0, K1
+	VMOVAPS Z0, K1, Z8
+	VMOVDQA32 Z24, K1, Z16
+	VCMPPS $0x1e, Z9, Z1, K1
+	VMOVAPS Z1, K1, Z9
+	VMOVDQA32 Z24, K1, Z17
+	VCMPPS $0x1e, Z10, Z2, K1
+	VMOVAPS Z2, K1, Z10
+	VMOVDQA32 Z24, K1, Z18
+	VCMPPS $0x1e, Z11, Z3, K1
+	VMOVAPS Z3, K1, Z11
+	VMOVDQA32 Z24, K1, Z19
+	VCMPPS $0x1e, Z12, Z4, K1
+	VMOVAPS Z4, K1, Z12
+	VMOVDQA32 Z24, K1, Z20
+	VCMPPS $0x1e, Z13, Z5, K1
+	VMOVAPS Z5, K1, Z13
+	VMOVDQA32 Z24, K1, Z21
+	VCMPPS $0x1e, Z14, Z6, K1
+	VMOVAPS Z6, K1, Z14
+	VMOVDQA32 Z24, K1, Z22
+	VCMPPS $0x1e, Z15, Z7, K1
+	VMOVAPS Z7, K1, Z15
+	VMOVDQA32 Z24, K1, Z23
+	VPADDD Z25, Z24, Z24
+	JMP f32z8next
+
+f32z8max:
+	VMAXPS Z8, Z0, Z8
+	VMAXPS Z9, Z1, Z9
+	VMAXPS Z10, Z2, Z10
+	VMAXPS Z11, Z3, Z11
+	VMAXPS Z12, Z4, Z12
+	VMAXPS Z13, Z5, Z13
+	VMAXPS Z14, Z6, Z14
+	VMAXPS Z15, Z7, Z15
+
+f32z8next:
+	INCQ CX
+	CMPQ CX, BX
+	JLT f32z8pos
+
+	MOVQ mx+56(FP), AX
+	VMOVUPS Z8, 0(AX)
+	VMOVUPS Z9, 64(AX)
+	VMOVUPS Z10, 128(AX)
+	VMOVUPS Z11, 192(AX)
+	VMOVUPS Z12, K4, 256(AX)
+	VMOVUPS Z13, K5, 320(AX)
+	VMOVUPS Z14, K6, 384(AX)
+	VMOVUPS Z15, K7, 448(AX)
+	MOVQ win+64(FP), AX
+	TESTQ AX, AX
+	JEQ f32z8done
+	VMOVDQU32 Z16, 0(AX)
+	VMOVDQU32 Z17, 64(AX)
+	VMOVDQU32 Z18, 128(AX)
+	VMOVDQU32 Z19, 192(AX)
+	VMOVDQU32 Z20, K4, 256(AX)
+	VMOVDQU32 Z21, K5, 320(AX)
+	VMOVDQU32 Z22, K6, 384(AX)
+	VMOVDQU32 Z23, K7, 448(AX)
+
+f32z8done:
+	VZEROUPPER
+	RET
+
+// func foldF32AVX512x4(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
+TEXT ·foldF32AVX512x4(SB), NOSPLIT, $0-80
+	FOLD_ARGS
+	VPXORD Z8, Z8, Z8
+	VPXORD Z9, Z9, Z9
+	VPXORD Z10, Z10, Z10
+	VPXORD Z11, Z11, Z11
+	VPTERNLOGD $0xff, Z16, Z16, Z16
+	VPTERNLOGD $0xff, Z17, Z17, Z17
+	VPTERNLOGD $0xff, Z18, Z18, Z18
+	VPTERNLOGD $0xff, Z19, Z19, Z19
 	Z_START
 
 f32z4pos:
 	POS_SETUP
-	VMOVAPS Z14, Z0
-	VMOVAPS Z15, Z1
-	VMOVAPS Z16, Z2
-	VMOVAPS Z17, Z3
+	VMOVUPS 0(R13), Z0
+	VMOVUPS 64(R13), Z1
+	VMOVUPS 128(R13), Z2
+	VMOVUPS 192(R13), Z3
 
 f32z4tap:
 	TAP_ROW
@@ -110,28 +223,61 @@ f32z4tap:
 	TAP_NEXT
 	JNZ f32z4tap
 
-	Z_UPD(Z0, Z4, Z8, K1)
-	Z_UPD(Z1, Z5, Z9, K2)
-	Z_UPD(Z2, Z6, Z10, K3)
-	Z_UPD(Z3, Z7, Z11, K4)
-	VPADDD Z13, Z12, Z12
+	CMPQ win+64(FP), $0
+	JEQ f32z4max
+	VCMPPS $0x1e, Z8, Z0, K1
+	VMOVAPS Z0, K1, Z8
+	VMOVDQA32 Z24, K1, Z16
+	VCMPPS $0x1e, Z9, Z1, K1
+	VMOVAPS Z1, K1, Z9
+	VMOVDQA32 Z24, K1, Z17
+	VCMPPS $0x1e, Z10, Z2, K1
+	VMOVAPS Z2, K1, Z10
+	VMOVDQA32 Z24, K1, Z18
+	VCMPPS $0x1e, Z11, Z3, K1
+	VMOVAPS Z3, K1, Z11
+	VMOVDQA32 Z24, K1, Z19
+	VPADDD Z25, Z24, Z24
+	JMP f32z4next
+
+f32z4max:
+	VMAXPS Z8, Z0, Z8
+	VMAXPS Z9, Z1, Z9
+	VMAXPS Z10, Z2, Z10
+	VMAXPS Z11, Z3, Z11
+
+f32z4next:
 	INCQ CX
 	CMPQ CX, BX
 	JLT f32z4pos
 
-	Z_STORE4
+	MOVQ mx+56(FP), AX
+	VMOVUPS Z8, 0(AX)
+	VMOVUPS Z9, 64(AX)
+	VMOVUPS Z10, 128(AX)
+	VMOVUPS Z11, 192(AX)
+	MOVQ win+64(FP), AX
+	TESTQ AX, AX
+	JEQ f32z4done
+	VMOVDQU32 Z16, 0(AX)
+	VMOVDQU32 Z17, 64(AX)
+	VMOVDQU32 Z18, 128(AX)
+	VMOVDQU32 Z19, 192(AX)
+
+f32z4done:
 	VZEROUPPER
 	RET
 
-// func foldF32AVX512x1(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32)
-TEXT ·foldF32AVX512x1(SB), NOSPLIT, $0-72
+// func foldF32AVX512x1(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
+TEXT ·foldF32AVX512x1(SB), NOSPLIT, $0-80
 	FOLD_ARGS
-	VMOVUPS 0(R13), Z14
+	VPXORD Z8, Z8, Z8
+	VPTERNLOGD $0xff, Z16, Z16, Z16
 	Z_START
 
 f32z1pos:
 	POS_SETUP
-	VMOVAPS Z14, Z0
+	VMOVUPS 0(R13), Z0
 
 f32z1tap:
 	TAP_ROW
@@ -139,129 +285,290 @@ f32z1tap:
 	TAP_NEXT
 	JNZ f32z1tap
 
-	Z_UPD(Z0, Z4, Z8, K1)
-	VPADDD Z13, Z12, Z12
+	CMPQ win+64(FP), $0
+	JEQ f32z1max
+	VCMPPS $0x1e, Z8, Z0, K1
+	VMOVAPS Z0, K1, Z8
+	VMOVDQA32 Z24, K1, Z16
+	VPADDD Z25, Z24, Z24
+	JMP f32z1next
+
+f32z1max:
+	VMAXPS Z8, Z0, Z8
+
+f32z1next:
 	INCQ CX
 	CMPQ CX, BX
 	JLT f32z1pos
 
-	Z_STORE1
+	MOVQ mx+56(FP), AX
+	VMOVUPS Z8, 0(AX)
+	MOVQ win+64(FP), AX
+	TESTQ AX, AX
+	JEQ f32z1done
+	VMOVDQU32 Z16, 0(AX)
+
+f32z1done:
 	VZEROUPPER
 	RET
 
-// func foldF16AVX512x4(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32)
-TEXT ·foldF16AVX512x4(SB), NOSPLIT, $0-72
+// func foldF16AVX512x8(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
+TEXT ·foldF16AVX512x8(SB), NOSPLIT, $0-80
 	FOLD_ARGS
-	VMOVUPS 0(R13), Z14
-	VMOVUPS 64(R13), Z15
-	VMOVUPS 128(R13), Z16
-	VMOVUPS 192(R13), Z17
+	Z_MASKS
+	VPXORD Z8, Z8, Z8
+	VPXORD Z9, Z9, Z9
+	VPXORD Z10, Z10, Z10
+	VPXORD Z11, Z11, Z11
+	VPXORD Z12, Z12, Z12
+	VPXORD Z13, Z13, Z13
+	VPXORD Z14, Z14, Z14
+	VPXORD Z15, Z15, Z15
+	VPTERNLOGD $0xff, Z16, Z16, Z16
+	VPTERNLOGD $0xff, Z17, Z17, Z17
+	VPTERNLOGD $0xff, Z18, Z18, Z18
+	VPTERNLOGD $0xff, Z19, Z19, Z19
+	VPTERNLOGD $0xff, Z20, Z20, Z20
+	VPTERNLOGD $0xff, Z21, Z21, Z21
+	VPTERNLOGD $0xff, Z22, Z22, Z22
+	VPTERNLOGD $0xff, Z23, Z23, Z23
+	Z_START
+
+f16z8pos:
+	POS_SETUP
+	VMOVUPS 0(R13), Z0
+	VMOVUPS 64(R13), Z1
+	VMOVUPS 128(R13), Z2
+	VMOVUPS 192(R13), Z3
+	VMOVUPS.Z 256(R13), K4, Z4
+	VMOVUPS.Z 320(R13), K5, Z5
+	VMOVUPS.Z 384(R13), K6, Z6
+	VMOVUPS.Z 448(R13), K7, Z7
+
+f16z8tap:
+	TAP_ROW
+	VCVTPH2PS 0(R12)(AX*1), Z26
+	VADDPS Z26, Z0, Z0
+	VCVTPH2PS 32(R12)(AX*1), Z27
+	VADDPS Z27, Z1, Z1
+	VCVTPH2PS 64(R12)(AX*1), Z28
+	VADDPS Z28, Z2, Z2
+	VCVTPH2PS 96(R12)(AX*1), Z29
+	VADDPS Z29, Z3, Z3
+	VCVTPH2PS.Z 128(R12)(AX*1), K4, Z26
+	VADDPS Z26, Z4, Z4
+	VCVTPH2PS.Z 160(R12)(AX*1), K5, Z27
+	VADDPS Z27, Z5, Z5
+	VCVTPH2PS.Z 192(R12)(AX*1), K6, Z28
+	VADDPS Z28, Z6, Z6
+	VCVTPH2PS.Z 224(R12)(AX*1), K7, Z29
+	VADDPS Z29, Z7, Z7
+	TAP_NEXT
+	JNZ f16z8tap
+
+	CMPQ win+64(FP), $0
+	JEQ f16z8max
+	VCMPPS $0x1e, Z8, Z0, K1
+	VMOVAPS Z0, K1, Z8
+	VMOVDQA32 Z24, K1, Z16
+	VCMPPS $0x1e, Z9, Z1, K1
+	VMOVAPS Z1, K1, Z9
+	VMOVDQA32 Z24, K1, Z17
+	VCMPPS $0x1e, Z10, Z2, K1
+	VMOVAPS Z2, K1, Z10
+	VMOVDQA32 Z24, K1, Z18
+	VCMPPS $0x1e, Z11, Z3, K1
+	VMOVAPS Z3, K1, Z11
+	VMOVDQA32 Z24, K1, Z19
+	VCMPPS $0x1e, Z12, Z4, K1
+	VMOVAPS Z4, K1, Z12
+	VMOVDQA32 Z24, K1, Z20
+	VCMPPS $0x1e, Z13, Z5, K1
+	VMOVAPS Z5, K1, Z13
+	VMOVDQA32 Z24, K1, Z21
+	VCMPPS $0x1e, Z14, Z6, K1
+	VMOVAPS Z6, K1, Z14
+	VMOVDQA32 Z24, K1, Z22
+	VCMPPS $0x1e, Z15, Z7, K1
+	VMOVAPS Z7, K1, Z15
+	VMOVDQA32 Z24, K1, Z23
+	VPADDD Z25, Z24, Z24
+	JMP f16z8next
+
+f16z8max:
+	VMAXPS Z8, Z0, Z8
+	VMAXPS Z9, Z1, Z9
+	VMAXPS Z10, Z2, Z10
+	VMAXPS Z11, Z3, Z11
+	VMAXPS Z12, Z4, Z12
+	VMAXPS Z13, Z5, Z13
+	VMAXPS Z14, Z6, Z14
+	VMAXPS Z15, Z7, Z15
+
+f16z8next:
+	INCQ CX
+	CMPQ CX, BX
+	JLT f16z8pos
+
+	MOVQ mx+56(FP), AX
+	VMOVUPS Z8, 0(AX)
+	VMOVUPS Z9, 64(AX)
+	VMOVUPS Z10, 128(AX)
+	VMOVUPS Z11, 192(AX)
+	VMOVUPS Z12, K4, 256(AX)
+	VMOVUPS Z13, K5, 320(AX)
+	VMOVUPS Z14, K6, 384(AX)
+	VMOVUPS Z15, K7, 448(AX)
+	MOVQ win+64(FP), AX
+	TESTQ AX, AX
+	JEQ f16z8done
+	VMOVDQU32 Z16, 0(AX)
+	VMOVDQU32 Z17, 64(AX)
+	VMOVDQU32 Z18, 128(AX)
+	VMOVDQU32 Z19, 192(AX)
+	VMOVDQU32 Z20, K4, 256(AX)
+	VMOVDQU32 Z21, K5, 320(AX)
+	VMOVDQU32 Z22, K6, 384(AX)
+	VMOVDQU32 Z23, K7, 448(AX)
+
+f16z8done:
+	VZEROUPPER
+	RET
+
+// func foldF16AVX512x4(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
+TEXT ·foldF16AVX512x4(SB), NOSPLIT, $0-80
+	FOLD_ARGS
+	VPXORD Z8, Z8, Z8
+	VPXORD Z9, Z9, Z9
+	VPXORD Z10, Z10, Z10
+	VPXORD Z11, Z11, Z11
+	VPTERNLOGD $0xff, Z16, Z16, Z16
+	VPTERNLOGD $0xff, Z17, Z17, Z17
+	VPTERNLOGD $0xff, Z18, Z18, Z18
+	VPTERNLOGD $0xff, Z19, Z19, Z19
 	Z_START
 
 f16z4pos:
 	POS_SETUP
-	VMOVAPS Z14, Z0
-	VMOVAPS Z15, Z1
-	VMOVAPS Z16, Z2
-	VMOVAPS Z17, Z3
+	VMOVUPS 0(R13), Z0
+	VMOVUPS 64(R13), Z1
+	VMOVUPS 128(R13), Z2
+	VMOVUPS 192(R13), Z3
 
 f16z4tap:
 	TAP_ROW
-	VCVTPH2PS 0(R12)(AX*1), Z20
-	VCVTPH2PS 32(R12)(AX*1), Z21
-	VCVTPH2PS 64(R12)(AX*1), Z22
-	VCVTPH2PS 96(R12)(AX*1), Z23
-	VADDPS Z20, Z0, Z0
-	VADDPS Z21, Z1, Z1
-	VADDPS Z22, Z2, Z2
-	VADDPS Z23, Z3, Z3
+	VCVTPH2PS 0(R12)(AX*1), Z26
+	VADDPS Z26, Z0, Z0
+	VCVTPH2PS 32(R12)(AX*1), Z27
+	VADDPS Z27, Z1, Z1
+	VCVTPH2PS 64(R12)(AX*1), Z28
+	VADDPS Z28, Z2, Z2
+	VCVTPH2PS 96(R12)(AX*1), Z29
+	VADDPS Z29, Z3, Z3
 	TAP_NEXT
 	JNZ f16z4tap
 
-	Z_UPD(Z0, Z4, Z8, K1)
-	Z_UPD(Z1, Z5, Z9, K2)
-	Z_UPD(Z2, Z6, Z10, K3)
-	Z_UPD(Z3, Z7, Z11, K4)
-	VPADDD Z13, Z12, Z12
+	CMPQ win+64(FP), $0
+	JEQ f16z4max
+	VCMPPS $0x1e, Z8, Z0, K1
+	VMOVAPS Z0, K1, Z8
+	VMOVDQA32 Z24, K1, Z16
+	VCMPPS $0x1e, Z9, Z1, K1
+	VMOVAPS Z1, K1, Z9
+	VMOVDQA32 Z24, K1, Z17
+	VCMPPS $0x1e, Z10, Z2, K1
+	VMOVAPS Z2, K1, Z10
+	VMOVDQA32 Z24, K1, Z18
+	VCMPPS $0x1e, Z11, Z3, K1
+	VMOVAPS Z3, K1, Z11
+	VMOVDQA32 Z24, K1, Z19
+	VPADDD Z25, Z24, Z24
+	JMP f16z4next
+
+f16z4max:
+	VMAXPS Z8, Z0, Z8
+	VMAXPS Z9, Z1, Z9
+	VMAXPS Z10, Z2, Z10
+	VMAXPS Z11, Z3, Z11
+
+f16z4next:
 	INCQ CX
 	CMPQ CX, BX
 	JLT f16z4pos
 
-	Z_STORE4
+	MOVQ mx+56(FP), AX
+	VMOVUPS Z8, 0(AX)
+	VMOVUPS Z9, 64(AX)
+	VMOVUPS Z10, 128(AX)
+	VMOVUPS Z11, 192(AX)
+	MOVQ win+64(FP), AX
+	TESTQ AX, AX
+	JEQ f16z4done
+	VMOVDQU32 Z16, 0(AX)
+	VMOVDQU32 Z17, 64(AX)
+	VMOVDQU32 Z18, 128(AX)
+	VMOVDQU32 Z19, 192(AX)
+
+f16z4done:
 	VZEROUPPER
 	RET
 
-// func foldF16AVX512x1(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32)
-TEXT ·foldF16AVX512x1(SB), NOSPLIT, $0-72
+// func foldF16AVX512x1(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
+TEXT ·foldF16AVX512x1(SB), NOSPLIT, $0-80
 	FOLD_ARGS
-	VMOVUPS 0(R13), Z14
+	VPXORD Z8, Z8, Z8
+	VPTERNLOGD $0xff, Z16, Z16, Z16
 	Z_START
 
 f16z1pos:
 	POS_SETUP
-	VMOVAPS Z14, Z0
+	VMOVUPS 0(R13), Z0
 
 f16z1tap:
 	TAP_ROW
-	VCVTPH2PS 0(R12)(AX*1), Z20
-	VADDPS Z20, Z0, Z0
+	VCVTPH2PS 0(R12)(AX*1), Z26
+	VADDPS Z26, Z0, Z0
 	TAP_NEXT
 	JNZ f16z1tap
 
-	Z_UPD(Z0, Z4, Z8, K1)
-	VPADDD Z13, Z12, Z12
+	CMPQ win+64(FP), $0
+	JEQ f16z1max
+	VCMPPS $0x1e, Z8, Z0, K1
+	VMOVAPS Z0, K1, Z8
+	VMOVDQA32 Z24, K1, Z16
+	VPADDD Z25, Z24, Z24
+	JMP f16z1next
+
+f16z1max:
+	VMAXPS Z8, Z0, Z8
+
+f16z1next:
 	INCQ CX
 	CMPQ CX, BX
 	JLT f16z1pos
 
-	Z_STORE1
+	MOVQ mx+56(FP), AX
+	VMOVUPS Z8, 0(AX)
+	MOVQ win+64(FP), AX
+	TESTQ AX, AX
+	JEQ f16z1done
+	VMOVDQU32 Z16, 0(AX)
+
+f16z1done:
 	VZEROUPPER
 	RET
 
-// ---- AVX2: Y0-Y3 sums, Y4-Y7 maxima, Y8-Y11 winners, Y12 position,
-// Y13 ones, Y14 widened halves, Y15 compare mask; bias read from R13.
-
-#define Y_START \
-	VXORPS Y4, Y4, Y4; \
-	VXORPS Y5, Y5, Y5; \
-	VXORPS Y6, Y6, Y6; \
-	VXORPS Y7, Y7, Y7; \
-	VPCMPEQD Y8, Y8, Y8; \
-	VPCMPEQD Y9, Y9, Y9; \
-	VPCMPEQD Y10, Y10, Y10; \
-	VPCMPEQD Y11, Y11, Y11; \
-	VPXOR Y12, Y12, Y12; \
-	MOVL $1, AX; \
-	MOVQ AX, X13; \
-	VPBROADCASTD X13, Y13; \
-	XORQ CX, CX
-
-#define Y_UPD(acc, mx, win) \
-	VCMPPS $0x1e, mx, acc, Y15; \
-	VBLENDVPS Y15, acc, mx, mx; \
-	VBLENDVPS Y15, Y12, win, win
-
-#define Y_STORE4 \
-	MOVQ mx+56(FP), AX; \
-	VMOVUPS Y4, 0(AX); \
-	VMOVUPS Y5, 32(AX); \
-	VMOVUPS Y6, 64(AX); \
-	VMOVUPS Y7, 96(AX); \
-	MOVQ win+64(FP), AX; \
-	VMOVDQU Y8, 0(AX); \
-	VMOVDQU Y9, 32(AX); \
-	VMOVDQU Y10, 64(AX); \
-	VMOVDQU Y11, 96(AX)
-
-#define Y_STORE1 \
-	MOVQ mx+56(FP), AX; \
-	VMOVUPS Y4, 0(AX); \
-	MOVQ win+64(FP), AX; \
-	VMOVDQU Y8, 0(AX)
-
-// func foldF32AVX2x4(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32)
-TEXT ·foldF32AVX2x4(SB), NOSPLIT, $0-72
+// func foldF32AVX2x4(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
+TEXT ·foldF32AVX2x4(SB), NOSPLIT, $0-80
 	FOLD_ARGS
+	VXORPS Y4, Y4, Y4
+	VXORPS Y5, Y5, Y5
+	VXORPS Y6, Y6, Y6
+	VXORPS Y7, Y7, Y7
+	VPCMPEQD Y8, Y8, Y8
+	VPCMPEQD Y9, Y9, Y9
+	VPCMPEQD Y10, Y10, Y10
+	VPCMPEQD Y11, Y11, Y11
 	Y_START
 
 f32y4pos:
@@ -280,22 +587,56 @@ f32y4tap:
 	TAP_NEXT
 	JNZ f32y4tap
 
-	Y_UPD(Y0, Y4, Y8)
-	Y_UPD(Y1, Y5, Y9)
-	Y_UPD(Y2, Y6, Y10)
-	Y_UPD(Y3, Y7, Y11)
+	CMPQ win+64(FP), $0
+	JEQ f32y4max
+	VCMPPS $0x1e, Y4, Y0, Y15
+	VBLENDVPS Y15, Y0, Y4, Y4
+	VBLENDVPS Y15, Y12, Y8, Y8
+	VCMPPS $0x1e, Y5, Y1, Y15
+	VBLENDVPS Y15, Y1, Y5, Y5
+	VBLENDVPS Y15, Y12, Y9, Y9
+	VCMPPS $0x1e, Y6, Y2, Y15
+	VBLENDVPS Y15, Y2, Y6, Y6
+	VBLENDVPS Y15, Y12, Y10, Y10
+	VCMPPS $0x1e, Y7, Y3, Y15
+	VBLENDVPS Y15, Y3, Y7, Y7
+	VBLENDVPS Y15, Y12, Y11, Y11
 	VPADDD Y13, Y12, Y12
+	JMP f32y4next
+
+f32y4max:
+	VMAXPS Y4, Y0, Y4
+	VMAXPS Y5, Y1, Y5
+	VMAXPS Y6, Y2, Y6
+	VMAXPS Y7, Y3, Y7
+
+f32y4next:
 	INCQ CX
 	CMPQ CX, BX
 	JLT f32y4pos
 
-	Y_STORE4
+	MOVQ mx+56(FP), AX
+	VMOVUPS Y4, 0(AX)
+	VMOVUPS Y5, 32(AX)
+	VMOVUPS Y6, 64(AX)
+	VMOVUPS Y7, 96(AX)
+	MOVQ win+64(FP), AX
+	TESTQ AX, AX
+	JEQ f32y4done
+	VMOVDQU Y8, 0(AX)
+	VMOVDQU Y9, 32(AX)
+	VMOVDQU Y10, 64(AX)
+	VMOVDQU Y11, 96(AX)
+
+f32y4done:
 	VZEROUPPER
 	RET
 
-// func foldF32AVX2x1(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32)
-TEXT ·foldF32AVX2x1(SB), NOSPLIT, $0-72
+// func foldF32AVX2x1(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
+TEXT ·foldF32AVX2x1(SB), NOSPLIT, $0-80
 	FOLD_ARGS
+	VXORPS Y4, Y4, Y4
+	VPCMPEQD Y8, Y8, Y8
 	Y_START
 
 f32y1pos:
@@ -308,19 +649,44 @@ f32y1tap:
 	TAP_NEXT
 	JNZ f32y1tap
 
-	Y_UPD(Y0, Y4, Y8)
+	CMPQ win+64(FP), $0
+	JEQ f32y1max
+	VCMPPS $0x1e, Y4, Y0, Y15
+	VBLENDVPS Y15, Y0, Y4, Y4
+	VBLENDVPS Y15, Y12, Y8, Y8
 	VPADDD Y13, Y12, Y12
+	JMP f32y1next
+
+f32y1max:
+	VMAXPS Y4, Y0, Y4
+
+f32y1next:
 	INCQ CX
 	CMPQ CX, BX
 	JLT f32y1pos
 
-	Y_STORE1
+	MOVQ mx+56(FP), AX
+	VMOVUPS Y4, 0(AX)
+	MOVQ win+64(FP), AX
+	TESTQ AX, AX
+	JEQ f32y1done
+	VMOVDQU Y8, 0(AX)
+
+f32y1done:
 	VZEROUPPER
 	RET
 
-// func foldF16AVX2x4(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32)
-TEXT ·foldF16AVX2x4(SB), NOSPLIT, $0-72
+// func foldF16AVX2x4(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
+TEXT ·foldF16AVX2x4(SB), NOSPLIT, $0-80
 	FOLD_ARGS
+	VXORPS Y4, Y4, Y4
+	VXORPS Y5, Y5, Y5
+	VXORPS Y6, Y6, Y6
+	VXORPS Y7, Y7, Y7
+	VPCMPEQD Y8, Y8, Y8
+	VPCMPEQD Y9, Y9, Y9
+	VPCMPEQD Y10, Y10, Y10
+	VPCMPEQD Y11, Y11, Y11
 	Y_START
 
 f16y4pos:
@@ -343,22 +709,56 @@ f16y4tap:
 	TAP_NEXT
 	JNZ f16y4tap
 
-	Y_UPD(Y0, Y4, Y8)
-	Y_UPD(Y1, Y5, Y9)
-	Y_UPD(Y2, Y6, Y10)
-	Y_UPD(Y3, Y7, Y11)
+	CMPQ win+64(FP), $0
+	JEQ f16y4max
+	VCMPPS $0x1e, Y4, Y0, Y15
+	VBLENDVPS Y15, Y0, Y4, Y4
+	VBLENDVPS Y15, Y12, Y8, Y8
+	VCMPPS $0x1e, Y5, Y1, Y15
+	VBLENDVPS Y15, Y1, Y5, Y5
+	VBLENDVPS Y15, Y12, Y9, Y9
+	VCMPPS $0x1e, Y6, Y2, Y15
+	VBLENDVPS Y15, Y2, Y6, Y6
+	VBLENDVPS Y15, Y12, Y10, Y10
+	VCMPPS $0x1e, Y7, Y3, Y15
+	VBLENDVPS Y15, Y3, Y7, Y7
+	VBLENDVPS Y15, Y12, Y11, Y11
 	VPADDD Y13, Y12, Y12
+	JMP f16y4next
+
+f16y4max:
+	VMAXPS Y4, Y0, Y4
+	VMAXPS Y5, Y1, Y5
+	VMAXPS Y6, Y2, Y6
+	VMAXPS Y7, Y3, Y7
+
+f16y4next:
 	INCQ CX
 	CMPQ CX, BX
 	JLT f16y4pos
 
-	Y_STORE4
+	MOVQ mx+56(FP), AX
+	VMOVUPS Y4, 0(AX)
+	VMOVUPS Y5, 32(AX)
+	VMOVUPS Y6, 64(AX)
+	VMOVUPS Y7, 96(AX)
+	MOVQ win+64(FP), AX
+	TESTQ AX, AX
+	JEQ f16y4done
+	VMOVDQU Y8, 0(AX)
+	VMOVDQU Y9, 32(AX)
+	VMOVDQU Y10, 64(AX)
+	VMOVDQU Y11, 96(AX)
+
+f16y4done:
 	VZEROUPPER
 	RET
 
-// func foldF16AVX2x1(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32)
-TEXT ·foldF16AVX2x1(SB), NOSPLIT, $0-72
+// func foldF16AVX2x1(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
+TEXT ·foldF16AVX2x1(SB), NOSPLIT, $0-80
 	FOLD_ARGS
+	VXORPS Y4, Y4, Y4
+	VPCMPEQD Y8, Y8, Y8
 	Y_START
 
 f16y1pos:
@@ -372,16 +772,32 @@ f16y1tap:
 	TAP_NEXT
 	JNZ f16y1tap
 
-	Y_UPD(Y0, Y4, Y8)
+	CMPQ win+64(FP), $0
+	JEQ f16y1max
+	VCMPPS $0x1e, Y4, Y0, Y15
+	VBLENDVPS Y15, Y0, Y4, Y4
+	VBLENDVPS Y15, Y12, Y8, Y8
 	VPADDD Y13, Y12, Y12
+	JMP f16y1next
+
+f16y1max:
+	VMAXPS Y4, Y0, Y4
+
+f16y1next:
 	INCQ CX
 	CMPQ CX, BX
 	JLT f16y1pos
 
-	Y_STORE1
+	MOVQ mx+56(FP), AX
+	VMOVUPS Y4, 0(AX)
+	MOVQ win+64(FP), AX
+	TESTQ AX, AX
+	JEQ f16y1done
+	VMOVDQU Y8, 0(AX)
+
+f16y1done:
 	VZEROUPPER
 	RET
-
 // ---- Dot products (FMA). Sums are kept in several vector accumulators
 // and added at the end, so they differ from a sequential sum by rounding.
 

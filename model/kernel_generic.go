@@ -17,8 +17,10 @@ type kernels struct {
 	//
 	// for every filter c < f, where T is tab laid out [rows][w][f]. The taps
 	// are added to the bias in order k = 0, 1, ..., in float32, so every
-	// implementation gives bit-identical results. acc is scratch of at
-	// least f values (implementations may ignore it).
+	// implementation gives bit-identical results. With win nil the winners
+	// are not tracked, which saves work when no one asks for them; mx is
+	// the same either way. acc is scratch of at least f values
+	// (implementations may ignore it).
 	foldF32 func(tab []float32, w, f int, rows []int32, bias, mx []float32, win []int32, acc []float32)
 	// foldF16 is foldF32 for a table of IEEE half-precision values; each
 	// is widened to float32 exactly before it is added.
@@ -49,9 +51,13 @@ var allKernels = []*kernels{&genericKernels}
 
 func foldGenericF32(tab []float32, w, f int, rows []int32, bias, mx []float32, win []int32, acc []float32) {
 	n := len(rows)
-	mx, win, bias, acc = mx[:f], win[:f], bias[:f], acc[:f]
-	for c := range mx {
-		mx[c], win[c] = 0, -1
+	mx, bias, acc = mx[:f], bias[:f], acc[:f]
+	clear(mx)
+	if win != nil {
+		win = win[:f]
+		for c := range win {
+			win[c] = -1
+		}
 	}
 	for p := range n {
 		copy(acc, bias)
@@ -61,6 +67,14 @@ func foldGenericF32(tab []float32, w, f int, rows []int32, bias, mx []float32, w
 			for c, v := range t {
 				acc[c] += v
 			}
+		}
+		if win == nil {
+			for c, v := range acc {
+				if v > mx[c] {
+					mx[c] = v
+				}
+			}
+			continue
 		}
 		for c, v := range acc {
 			if v > mx[c] {
@@ -72,9 +86,13 @@ func foldGenericF32(tab []float32, w, f int, rows []int32, bias, mx []float32, w
 
 func foldGenericF16(tab []uint16, w, f int, rows []int32, bias, mx []float32, win []int32, acc []float32) {
 	n := len(rows)
-	mx, win, bias, acc = mx[:f], win[:f], bias[:f], acc[:f]
-	for c := range mx {
-		mx[c], win[c] = 0, -1
+	mx, bias, acc = mx[:f], bias[:f], acc[:f]
+	clear(mx)
+	if win != nil {
+		win = win[:f]
+		for c := range win {
+			win[c] = -1
+		}
 	}
 	for p := range n {
 		copy(acc, bias)
@@ -84,6 +102,14 @@ func foldGenericF16(tab []uint16, w, f int, rows []int32, bias, mx []float32, wi
 			for c, h := range t {
 				acc[c] += F16ToF32(h)
 			}
+		}
+		if win == nil {
+			for c, v := range acc {
+				if v > mx[c] {
+					mx[c] = v
+				}
+			}
+			continue
 		}
 		for c, v := range acc {
 			if v > mx[c] {
@@ -125,30 +151,48 @@ type f16Hardware struct {
 
 var hwF16 *f16Hardware
 
-// chunkFunc runs a fold kernel on the columns starting at c.
-type chunkFunc func(c int, four bool)
-
-// chunks covers columns [0, f) with chunks of 4 or 1 vectors of vw lanes
-// (f >= vw). A last partial chunk is moved left to end at f, overlapping
-// its predecessor: the overlapped columns are recomputed with the same
-// additions in the same order, so they get the same values again.
-func chunks(f, vw int, run chunkFunc) {
+// chunkPlan covers columns [0, f) (f >= vw) with chunks of vectors of vw
+// lanes, calling run(c, v, masks) for v vectors starting at column c:
+//
+//   - v = 4 or 1: whole vectors. A last partial chunk is moved left to end
+//     at f, overlapping its predecessor: the overlapped columns are
+//     recomputed with the same additions in the same order, so they get
+//     the same values again.
+//   - v = 8 (only with wide set): vectors 0-3 whole, vectors 4-7 limited to
+//     the lanes set in masks (16 bits per vector, vector 4 lowest), so a
+//     remainder of 4·vw+1 .. 8·vw columns takes one pass over the text.
+func chunkPlan(f, vw int, wide bool, run func(c, v int, masks uint64)) {
 	c := 0
+	if wide {
+		for f-c > 8*vw {
+			run(c, 4, 0)
+			c += 4 * vw
+		}
+		if r := f - c; r > 4*vw {
+			var masks uint64
+			for v := range 4 {
+				lanes := min(max(r-4*vw-v*vw, 0), vw)
+				masks |= (1<<lanes - 1) << (16 * v)
+			}
+			run(c, 8, masks)
+			return
+		}
+	}
 	for ; c+4*vw <= f; c += 4 * vw {
-		run(c, true)
+		run(c, 4, 0)
 	}
 	left := f - c
 	switch {
 	case left == 0:
 		return
 	case left > 2*vw && f >= 4*vw:
-		run(f-4*vw, true) // one pass over the text beats three
+		run(f-4*vw, 4, 0) // one pass over the text beats three
 		return
 	}
 	for ; c+vw <= f; c += vw {
-		run(c, false)
+		run(c, 1, 0)
 	}
 	if c < f {
-		run(f-vw, false)
+		run(f-vw, 1, 0)
 	}
 }

@@ -76,6 +76,22 @@ func TestFoldKernelsMatchGeneric(t *testing.T) {
 					if gotMx[f] != 42 || gotWin[f] != 42 {
 						t.Fatalf("w=%d f=%d n=%d half=%v: wrote past the last filter", w, f, n, half)
 					}
+					// Without winners: the same maxima, and win untouched.
+					noMx := make([]float32, f+1)
+					noMx[f] = 42
+					if half {
+						k.foldF16(c.t16, w, f, c.rows, c.bias, noMx[:f], nil, acc)
+					} else {
+						k.foldF32(c.t32, w, f, c.rows, c.bias, noMx[:f], nil, acc)
+					}
+					if noMx[f] != 42 {
+						t.Fatalf("w=%d f=%d n=%d half=%v: wrote past the last filter without winners", w, f, n, half)
+					}
+					for j := range f {
+						if math.Float32bits(noMx[j]) != math.Float32bits(wantMx[j]) {
+							t.Fatalf("w=%d f=%d n=%d half=%v filter %d: without winners %v, generic %v", w, f, n, half, j, noMx[j], wantMx[j])
+						}
+					}
 					for j := range f {
 						if math.Float32bits(gotMx[j]) != math.Float32bits(wantMx[j]) || gotWin[j] != wantWin[j] {
 							t.Fatalf("w=%d f=%d n=%d half=%v filter %d: got %v@%d, generic %v@%d",
@@ -270,24 +286,37 @@ func TestF16Hardware(t *testing.T) {
 	}
 }
 
-func TestChunksCoverExactly(t *testing.T) {
+func TestChunkPlanCoversExactly(t *testing.T) {
 	for _, vw := range []int{8, 16} {
-		for f := vw; f <= 400; f++ {
-			seen := make([]int, f)
-			chunks(f, vw, func(c int, four bool) {
-				width := vw
-				if four {
-					width = 4 * vw
+		for _, wide := range []bool{false, true} {
+			for f := vw; f <= 400; f++ {
+				seen := make([]int, f)
+				passes := 0
+				chunkPlan(f, vw, wide, func(c, v int, masks uint64) {
+					passes++
+					if v == 8 && !wide || v != 1 && v != 4 && v != 8 {
+						t.Fatalf("vw=%d wide=%v f=%d: chunk of %d vectors", vw, wide, f, v)
+					}
+					cols := make([]bool, v*vw)
+					for j := range cols {
+						cols[j] = j < 4*vw || masks>>(16*(j/vw-4)+j%vw)&1 == 1
+					}
+					for j, on := range cols {
+						if !on {
+							continue
+						}
+						if c+j < 0 || c+j >= f {
+							t.Fatalf("vw=%d wide=%v f=%d: chunk at %d reaches column %d", vw, wide, f, c, c+j)
+						}
+						seen[c+j]++
+					}
+				})
+				if i := slices.Index(seen, 0); i >= 0 {
+					t.Fatalf("vw=%d wide=%v f=%d: column %d not covered", vw, wide, f, i)
 				}
-				if c < 0 || c+width > f {
-					t.Fatalf("vw=%d f=%d: chunk [%d,%d) out of range", vw, f, c, c+width)
+				if wide && vw == 16 && f == 100 && passes != 1 {
+					t.Fatalf("f=100 takes %d passes over the text, want 1", passes)
 				}
-				for j := c; j < c+width; j++ {
-					seen[j]++
-				}
-			})
-			if slices.Contains(seen, 0) {
-				t.Fatalf("vw=%d f=%d: column %d not covered", vw, f, slices.Index(seen, 0))
 			}
 		}
 	}
