@@ -6,7 +6,6 @@ import "github.com/spf13/cobra"
 func init() {
 	for _, c := range []struct{ name, short string }{
 		{"eval", "Evaluate a model on labelled records"},
-		{"embed", "Learn word vectors from unlabelled text"},
 	} {
 		commands = append(commands, func(*app) *cobra.Command {
 			return &cobra.Command{Use: c.name, Short: c.short + " (not yet built)", RunE: notYet(c.name)}

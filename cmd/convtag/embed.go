@@ -1,0 +1,346 @@
+package main
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"os"
+	"os/signal"
+	"path/filepath"
+	"runtime"
+	"strings"
+	"syscall"
+	"time"
+
+	"github.com/mattn/go-isatty"
+	"github.com/spf13/cobra"
+
+	"convtag/model"
+	"convtag/model/sgns"
+	"convtag/model/vectors"
+	"convtag/stream"
+)
+
+func init() { commands = append(commands, newEmbedCmd) }
+
+// embedFlags are the embed command's settings.
+type embedFlags struct {
+	output, input  string
+	near, textKeys []string
+	binary, quiet  bool
+	top            int
+	o              sgns.Options
+	sample         float64
+}
+
+func newEmbedCmd(a *app) *cobra.Command {
+	var f embedFlags
+	c := &cobra.Command{
+		Use:   "embed -o VECTORS [flags] [FILE...]\n  convtag embed --near WORD -i VECTORS",
+		Short: "Learn word vectors from unlabelled text",
+		Long: `embed learns word vectors from unlabelled text by skip-gram with negative
+sampling (Mikolov et al., 2013), for "convtag train --vectors".
+
+Each line of the FILEs (plain, gzip, zstd or bzip2; "-" or none for
+standard input) is one record: plain text, or with --text-key a JSON record
+whose text is under that dotted path (repeat to join several values with a
+space). Words are the model's tokens, so the vectors' words are the ones a
+model looks up. The input is read once to count words and once per epoch:
+memory holds the vocabulary and the vectors, never the text (standard input
+is copied to a temporary file first).
+
+Vectors are written in the common word-vector text format ("count dim",
+then "word v1 ... vd" lines), or with --binary the binary variant.
+
+With --near, embed instead prints the words closest to WORD by cosine
+similarity in the vectors file given by -i, one "word<TAB>neighbour<TAB>
+similarity" line each.
+
+With -j 1 a --seed gives identical vectors; with more jobs the vectors are
+updated without locks and vary from run to run.
+
+` + exitHelp,
+		Example: `  convtag embed -o chat.vec chat-2026-*.log.gz
+  convtag embed -o chat.vec --text-key text --dim 128 chat.jsonl
+  convtag train -o ferry.safetensors --vectors chat.vec testdata/demo/train.jsonl
+  convtag embed --near ferry --near delayed -i chat.vec`,
+		Args: cobra.ArbitraryArgs,
+		RunE: func(cmd *cobra.Command, args []string) error {
+			if len(f.near) > 0 {
+				return runNear(a, &f, args)
+			}
+			return runEmbed(a, &f, args)
+		},
+	}
+	fl := c.Flags()
+	fl.StringVarP(&f.output, "output", "o", "", `vectors file to write ("-" for standard output)`)
+	fl.BoolVar(&f.binary, "binary", false, "write the binary word-vector format instead of text")
+	fl.StringArrayVar(&f.textKeys, "text-key", nil, "dotted path of the text in a JSON record; repeat to join several (default: plain lines)")
+	fl.IntVar(&f.o.Dim, "dim", sgns.DefaultDim, "vector size")
+	fl.IntVar(&f.o.Window, "window", sgns.DefaultWindow, "largest distance to a context word (each centre word draws 1..window)")
+	fl.IntVar(&f.o.Negative, "negative", sgns.DefaultNegative, "noise words per context word")
+	fl.IntVar(&f.o.MinCount, "min-count", sgns.DefaultMinCount, "leave out words seen fewer times")
+	fl.Float64Var(&f.sample, "subsample", sgns.DefaultSample, "sub-sampling threshold for frequent words; 0 turns it off")
+	fl.Float64Var(&f.o.Alpha, "learning-rate", sgns.DefaultAlpha, "starting learning rate, decayed linearly to nothing")
+	fl.IntVar(&f.o.Epochs, "epochs", sgns.DefaultEpochs, "passes over the input")
+	fl.Uint64Var(&f.o.Seed, "seed", 1, "seed for initialisation, sampling and windows")
+	fl.IntVarP(&f.o.Jobs, "jobs", "j", 0, "worker threads (default: all cores); only -j 1 is reproducible")
+	fl.BoolVarP(&f.quiet, "quiet", "q", false, "no progress on stderr")
+	fl.StringArrayVar(&f.near, "near", nil, "print the nearest neighbours of WORD in the -i vectors (repeatable)")
+	fl.StringVarP(&f.input, "input", "i", "", "vectors file for --near")
+	fl.IntVar(&f.top, "top", 10, "neighbours to print for each --near word")
+	return c
+}
+
+func (f *embedFlags) check(args []string) error {
+	o := f.o
+	switch {
+	case f.output == "":
+		return usageErr("convtag embed -o VECTORS FILE...", "embed: no output file (-o)")
+	case f.input != "":
+		return usageErr("convtag embed --near WORD -i VECTORS", "embed: -i is for --near")
+	case o.Dim < 1 || o.Dim > vectors.MaxDim:
+		return usageErr("--dim 100", "embed: --dim %d out of range 1..%d", o.Dim, vectors.MaxDim)
+	case o.Window < 1 || o.Negative < 1 || o.MinCount < 1 || o.Epochs < 1:
+		return usageErr("", "embed: --window, --negative, --min-count and --epochs must be at least 1")
+	case o.Jobs < 0:
+		return usageErr("-j 2", "embed: --jobs %d is negative", o.Jobs)
+	case !(o.Alpha > 0 && o.Alpha < 10):
+		return usageErr("--learning-rate 0.025", "embed: --learning-rate %g out of range (0, 10)", o.Alpha)
+	case !(f.sample >= 0 && f.sample < 1):
+		return usageErr("--subsample 1e-4", "embed: --subsample %g out of range [0, 1)", f.sample)
+	}
+	return nil
+}
+
+// textCorpus streams the texts of files for each pass of training and
+// keeps the first pass's record counts.
+type textCorpus struct {
+	files []string
+	opt   stream.TextOptions
+	stats *stream.TextStats
+}
+
+func (c *textCorpus) Scan(fn func([]byte) error) error {
+	st, err := stream.ScanTexts(c.files, c.opt, fn)
+	if c.stats == nil && err == nil {
+		c.stats = &st
+	}
+	return err
+}
+
+func runEmbed(a *app, f *embedFlags, args []string) error {
+	if err := f.check(args); err != nil {
+		return err
+	}
+	if len(args) == 0 {
+		args = []string{"-"}
+	}
+	// Standard input can be read only once; the passes need it again.
+	for i, name := range args {
+		if name != "-" {
+			continue
+		}
+		tmp, err := spool(a.stdin)
+		if err != nil {
+			return withCode(exitFailure, fmt.Errorf("embed: copy standard input: %w", err))
+		}
+		defer os.Remove(tmp)
+		for j := i; j < len(args); j++ {
+			if args[j] == "-" {
+				args[j] = tmp
+			}
+		}
+		break
+	}
+	f.o.Sample = f.sample
+	if f.sample == 0 {
+		f.o.Sample = -1
+	}
+	f.o.Tokenizer = model.TokenizerSettings{}
+	if !f.quiet {
+		f.o.Progress, f.o.ProgressEvery = embedProgress(a)
+	}
+	corpus := &textCorpus{files: args, opt: stream.TextOptions{TextKeys: f.textKeys, Report: -1}}
+
+	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
+	defer stop()
+	res, err := sgns.Train(ctx, corpus, f.o)
+	if corpus.stats != nil {
+		reportTexts(a, f, args, corpus)
+	}
+	switch {
+	case errors.Is(err, context.Canceled):
+		return withCode(exitFailure, errors.New("embed: interrupted"))
+	case errors.Is(err, sgns.ErrNoVocabulary):
+		return withCode(exitFailure, fmt.Errorf("embed: %s: %w", strings.Join(args, ", "), err))
+	case err != nil:
+		var ie *stream.InputError
+		if errors.As(err, &ie) {
+			return withCode(exitFailure, err)
+		}
+		return withCode(exitFailure, fmt.Errorf("embed: %w", err))
+	}
+	format := vectors.Text
+	if f.binary {
+		format = vectors.Binary
+	}
+	if err := writeVectors(a, f.output, res.Vectors, format); err != nil {
+		return withCode(exitFailure, fmt.Errorf("embed: %w", err))
+	}
+	if !f.quiet {
+		jobs := f.o.Jobs
+		if jobs == 0 {
+			jobs = runtime.GOMAXPROCS(0)
+		}
+		fmt.Fprintf(a.stderr, "convtag: embed: %d words of dimension %d from %d records (%d tokens; %d distinct words below --min-count %d); %d epochs on %d jobs in %s, %s words/s; wrote %s\n",
+			res.Vectors.Len(), res.Vectors.Dim, res.Records, res.Tokens, res.Rare, f.o.MinCount,
+			f.o.Epochs, jobs, res.TrainTime.Round(time.Millisecond), siCount(float64(res.Words)*float64(f.o.Epochs)/res.TrainTime.Seconds()), f.output)
+	}
+	return nil
+}
+
+// reportTexts says how many JSON records had no usable text, with the
+// first few by file and line (from a separate, short pass).
+func reportTexts(a *app, f *embedFlags, args []string, c *textCorpus) {
+	st := c.stats
+	if st.Skipped == 0 {
+		return
+	}
+	fmt.Fprintf(a.stderr, "convtag: embed: %d records skipped (malformed JSON or no text under --text-key)\n", st.Skipped)
+	opt := c.opt
+	opt.Report = 5
+	shown, _ := stream.ScanTexts(args, opt, func([]byte) error { return nil })
+	for _, p := range shown.Problems {
+		fmt.Fprintf(a.stderr, "convtag: %v\n", p)
+	}
+}
+
+// spool copies r to a temporary file and returns its name.
+func spool(r io.Reader) (string, error) {
+	tmp, err := os.CreateTemp("", "convtag-embed-*")
+	if err != nil {
+		return "", err
+	}
+	_, err = io.Copy(tmp, r)
+	if cerr := tmp.Close(); err == nil {
+		err = cerr
+	}
+	if err != nil {
+		os.Remove(tmp.Name())
+		return "", err
+	}
+	return tmp.Name(), nil
+}
+
+// writeVectors writes s to path ("-" is standard output) through a
+// temporary file beside it, renamed into place once complete.
+func writeVectors(a *app, path string, s *vectors.Set, format vectors.Format) error {
+	if path == "-" {
+		return s.Write(a.stdout, format)
+	}
+	tmp, err := os.CreateTemp(filepath.Dir(path), "."+filepath.Base(path)+".tmp*")
+	if err != nil {
+		return err
+	}
+	defer os.Remove(tmp.Name())
+	err = s.Write(tmp, format)
+	if err == nil {
+		err = tmp.Sync()
+	}
+	if cerr := tmp.Close(); err == nil {
+		err = cerr
+	}
+	if err == nil {
+		err = os.Rename(tmp.Name(), path)
+	}
+	return err
+}
+
+// embedProgress returns the progress reporter: a line rewritten in place
+// every second on a terminal, else a line every 10 seconds, and one line at
+// the end of each phase.
+func embedProgress(a *app) (func(sgns.Progress), time.Duration) {
+	f, ok := a.stderr.(*os.File)
+	tty := ok && isatty.IsTerminal(f.Fd())
+	every := 10 * time.Second
+	if tty {
+		every = time.Second
+	}
+	return func(p sgns.Progress) {
+		var line string
+		if p.Phase == sgns.PhaseCount {
+			line = fmt.Sprintf("counting words: %s tokens, %s tokens/s", siCount(float64(p.Words)), siCount(p.WordsPerSecond()))
+		} else {
+			line = fmt.Sprintf("epoch %d/%d: %5.1f%%, %s words/s, learning rate %.5f", p.Epoch, p.Epochs,
+				100*float64(p.Words)/float64(max(p.Total, 1)), siCount(p.WordsPerSecond()), p.Alpha)
+			if p.Done {
+				line += fmt.Sprintf(", %s", p.Elapsed.Round(100*time.Millisecond))
+			} else {
+				line += fmt.Sprintf(", %s left", p.Remaining().Round(time.Second))
+			}
+		}
+		switch {
+		case tty && p.Done:
+			fmt.Fprintf(a.stderr, "\r\033[Kconvtag: %s\n", line)
+		case tty:
+			fmt.Fprintf(a.stderr, "\r\033[Kconvtag: %s", line)
+		default:
+			fmt.Fprintf(a.stderr, "convtag: %s\n", line)
+		}
+	}, every
+}
+
+// siCount spells n with a k or M suffix.
+func siCount(n float64) string {
+	switch {
+	case n >= 1e6:
+		return fmt.Sprintf("%.2fM", n/1e6)
+	case n >= 1e4:
+		return fmt.Sprintf("%.0fk", n/1e3)
+	}
+	return fmt.Sprintf("%.0f", n)
+}
+
+func runNear(a *app, f *embedFlags, args []string) error {
+	switch {
+	case f.input == "":
+		return usageErr("convtag embed --near WORD -i VECTORS", "embed: --near needs the vectors file (-i)")
+	case f.output != "" || len(args) > 0:
+		return usageErr("convtag embed --near WORD -i VECTORS", "embed: --near reads vectors and takes no -o or input files")
+	case f.top < 1:
+		return usageErr("--top 10", "embed: --top %d is below 1", f.top)
+	}
+	r, err := os.Open(f.input)
+	if err != nil {
+		return withCode(exitFailure, fmt.Errorf("embed: %w", err))
+	}
+	s, err := vectors.Read(r)
+	r.Close()
+	if err != nil {
+		return withCode(exitFailure, fmt.Errorf("embed: %s: %w", f.input, err))
+	}
+	tok := model.NewTokenizer(model.TokenizerSettings{})
+	var ts model.Tokens
+	idx := s.Index()
+	var out strings.Builder
+	for _, w := range f.near {
+		q, ok := idx[w]
+		if !ok {
+			// Look the word up as the tokenizer spells it ("Ferry" → "ferry").
+			tok.Tokenize(&ts, []byte(w))
+			if ts.Len() == 1 {
+				q, ok = idx[string(ts.At(0))]
+			}
+		}
+		if !ok {
+			return withCode(exitFailure, fmt.Errorf("embed: %q is not in %s (%d words)", w, f.input, s.Len()))
+		}
+		for _, n := range s.NearestTo(s.Vec(q), f.top, q) {
+			fmt.Fprintf(&out, "%s\t%s\t%.4f\n", s.Words[q], n.Word, n.Similarity)
+		}
+	}
+	_, err = io.WriteString(a.stdout, out.String())
+	return withCode(exitFailure, err)
+}

@@ -1,0 +1,193 @@
+package main
+
+import (
+	"bytes"
+	"fmt"
+	"math/rand/v2"
+	"os"
+	"path/filepath"
+	"slices"
+	"strings"
+	"testing"
+
+	"convtag/model/vectors"
+)
+
+// embedCorpus invents chat lines in which the words of each group share
+// their contexts: a line is about one group, with filler words common to
+// all lines.
+func embedCorpus(lines int) (string, [][]string) {
+	groups := [][]string{
+		{"ferry", "launch", "skiff"},
+		{"kelpholm", "saltery", "brinwick"},
+		{"delayed", "cancelled", "rerouted"},
+		{"ticket", "voucher", "pass"},
+	}
+	fill := []string{"the", "is", "at", "and"}
+	rng := rand.New(rand.NewPCG(3, 4))
+	var sb strings.Builder
+	for range lines {
+		g := groups[rng.IntN(len(groups))]
+		for i := range 5 + rng.IntN(6) {
+			if i > 0 {
+				sb.WriteByte(' ')
+			}
+			if rng.IntN(3) == 0 {
+				sb.WriteString(fill[rng.IntN(len(fill))])
+			} else {
+				w := g[rng.IntN(len(g))]
+				if rng.IntN(4) == 0 {
+					w = strings.ToUpper(w[:1]) + w[1:] // the tokenizer folds case
+				}
+				sb.WriteString(w)
+			}
+		}
+		sb.WriteByte('\n')
+	}
+	return sb.String(), groups
+}
+
+func readVectors(t *testing.T, path string) *vectors.Set {
+	t.Helper()
+	b, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	s, err := vectors.Read(bytes.NewReader(b))
+	if err != nil {
+		t.Fatalf("%s: %v", path, err)
+	}
+	return s
+}
+
+func TestEmbed(t *testing.T) {
+	dir := t.TempDir()
+	text, groups := embedCorpus(2000)
+	in := filepath.Join(dir, "chat.txt")
+	if err := os.WriteFile(in, []byte(text), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	common := []string{"--dim", "12", "--epochs", "3", "--subsample", "0", "-j", "1", "--seed", "7", "-q"}
+	txt, bin := filepath.Join(dir, "v.txt"), filepath.Join(dir, "v.bin")
+	if code, _, errs := runCmd(t, "", append([]string{"embed", "-o", txt, in}, common...)...); code != exitOK {
+		t.Fatalf("embed: exit %d: %s", code, errs)
+	}
+	if code, _, errs := runCmd(t, "", append([]string{"embed", "-o", bin, "--binary", in}, common...)...); code != exitOK {
+		t.Fatalf("embed --binary: exit %d: %s", code, errs)
+	}
+	// Standard input gives the same vectors as the file (-j 1, same seed).
+	code, out, errs := runCmd(t, text, append([]string{"embed", "-o", "-"}, common...)...)
+	if code != exitOK {
+		t.Fatalf("embed from stdin: exit %d: %s", code, errs)
+	}
+	a, b := readVectors(t, txt), readVectors(t, bin)
+	c, err := vectors.Read(strings.NewReader(out))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if a.Len() != 16 || a.Dim != 12 {
+		t.Fatalf("%d words of dim %d, want 16 of 12", a.Len(), a.Dim)
+	}
+	for name, s := range map[string]*vectors.Set{"binary": b, "stdin": c} {
+		if !slices.Equal(s.Words, a.Words) || !slices.Equal(s.Vecs, a.Vecs) {
+			t.Errorf("%s vectors differ from the text file's", name)
+		}
+	}
+
+	// --near: the group mates come first.
+	code, out, errs = runCmd(t, "", "embed", "--near", "Ferry", "--near", "voucher", "--top", "2", "-i", txt)
+	if code != exitOK {
+		t.Fatalf("--near: exit %d: %s", code, errs)
+	}
+	lines := strings.Split(strings.TrimSpace(out), "\n")
+	if len(lines) != 4 {
+		t.Fatalf("--near printed %q", out)
+	}
+	for i, want := range [][]string{groups[0], groups[3]} {
+		var got []string
+		for _, l := range lines[2*i : 2*i+2] {
+			f := strings.Split(l, "\t")
+			if len(f) != 3 || !slices.Contains(want, f[0]) {
+				t.Fatalf("line %q", l)
+			}
+			got = append(got, f[1])
+		}
+		for _, g := range got {
+			if !slices.Contains(want, g) {
+				t.Errorf("neighbours %v of %s, want words of %v", got, want, want)
+			}
+		}
+	}
+}
+
+func TestEmbedJSONAndProgress(t *testing.T) {
+	dir := t.TempDir()
+	text, _ := embedCorpus(300)
+	var sb strings.Builder
+	for i, l := range strings.Split(strings.TrimSpace(text), "\n") {
+		fmt.Fprintf(&sb, `{"ts": %d, "msg": {"body": %q}}`+"\n", i, l)
+		if i == 10 {
+			sb.WriteString("{broken\n")
+		}
+	}
+	in := filepath.Join(dir, "chat.jsonl")
+	if err := os.WriteFile(in, []byte(sb.String()), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	out := filepath.Join(dir, "v.txt")
+	code, _, errs := runCmd(t, "", "embed", "-o", out, "--text-key", "msg.body", "--dim", "8", "--epochs", "2", in)
+	if code != exitOK {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	for _, want := range []string{
+		"1 records skipped",
+		in + ":12: stream: malformed JSON",
+		"counting words:",
+		"epoch 2/2: 100.0%",
+		"learning rate",
+		"words/s",
+		"from 300 records",
+	} {
+		if !strings.Contains(errs, want) {
+			t.Errorf("stderr lacks %q:\n%s", want, errs)
+		}
+	}
+	if s := readVectors(t, out); s.Len() != 16 {
+		t.Errorf("%d words, want 16", s.Len())
+	}
+}
+
+func TestEmbedErrors(t *testing.T) {
+	dir := t.TempDir()
+	vec := filepath.Join(dir, "v.txt")
+	if err := os.WriteFile(vec, []byte("1 2\nferry 1 2\n"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	bad := filepath.Join(dir, "bad.txt")
+	if err := os.WriteFile(bad, []byte("2 2\nferry 1 2\nquay 1\n"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	for _, tc := range []struct {
+		args []string
+		code int
+		msg  string
+	}{
+		{[]string{"embed", "in.txt"}, exitUsage, "no output file"},
+		{[]string{"embed", "-o", "x", "--dim", "0"}, exitUsage, "--dim 0"},
+		{[]string{"embed", "-o", "x", "--subsample", "-1"}, exitUsage, "--subsample"},
+		{[]string{"embed", "--near", "ferry"}, exitUsage, "-i"},
+		{[]string{"embed", "--near", "ferry", "-i", vec, "-o", "x"}, exitUsage, "no -o"},
+		{[]string{"embed", "--near", "quay", "-i", vec}, exitFailure, `"quay" is not in`},
+		{[]string{"embed", "--near", "ferry", "-i", bad}, exitFailure, "bad.txt: vectors: line 3: wrong number of values"},
+		{[]string{"embed", "-o", filepath.Join(dir, "o"), filepath.Join(dir, "missing.txt")}, exitFailure, "missing.txt"},
+		{[]string{"embed", "-o", filepath.Join(dir, "o"), vec}, exitFailure, "no word reaches the minimum count"},
+	} {
+		code, _, errs := runCmd(t, "", tc.args...)
+		if code != tc.code || !strings.Contains(errs, tc.msg) || !strings.HasPrefix(errs, "convtag: ") {
+			t.Errorf("%v: exit %d, stderr %q; want exit %d mentioning %q", tc.args, code, errs, tc.code, tc.msg)
+		}
+	}
+	if _, err := os.Stat(filepath.Join(dir, "o")); !os.IsNotExist(err) {
+		t.Errorf("a failed run left an output file: %v", err)
+	}
+}
