@@ -88,8 +88,9 @@ type cutter struct {
 	seq     uint64
 	gen     uint64
 	tagger  *taggerState
-	set     *Tagger // the Switch's value behind tagger, if any
-	stopped bool    // ended by stop or abort, not by the end of input
+	set     *Tagger   // the Switch's value behind tagger, if any
+	stopped bool      // ended by stop or abort, not by the end of input
+	since   time.Time // when cur got its first whole line
 }
 
 func (c *cutter) take() *block {
@@ -124,6 +125,15 @@ func (c *cutter) send(b *block) bool {
 	case <-c.abort:
 		c.stopped = true
 		return false
+	}
+}
+
+// stopNow sends the whole lines of cur, on cancellation.
+func (c *cutter) stopNow(cur *block) {
+	c.stopped = true
+	if cur.lastNL >= 0 {
+		cur.in = cur.in[:cur.lastNL+1]
+		c.send(cur)
 	}
 }
 
@@ -170,7 +180,7 @@ func (c *cutter) run() {
 					}
 					continue
 				case <-c.stop:
-					c.stopped = true
+					c.stopNow(cur)
 					return
 				case <-c.abort:
 					c.stopped = true
@@ -180,7 +190,7 @@ func (c *cutter) run() {
 				select {
 				case ch, ok = <-c.chunks:
 				case <-c.stop:
-					c.stopped = true
+					c.stopNow(cur)
 					return
 				case <-c.abort:
 					c.stopped = true
@@ -194,12 +204,6 @@ func (c *cutter) run() {
 			}
 			return
 		}
-		select {
-		case <-c.stop:
-			c.stopped = true
-			return
-		default:
-		}
 		cur.file = ch.file
 		if ch.buf != nil {
 			cur, long = c.add(cur, ch.buf, long)
@@ -207,6 +211,21 @@ func (c *cutter) run() {
 			if cur == nil {
 				return
 			}
+			// Input that trickles in faster than the pause still goes out
+			// within maxWait of its first whole line.
+			if cur.lastNL >= 0 && time.Since(c.since) >= c.cfg.maxWait {
+				if cur = c.ship(cur, cur.lastNL+1); cur == nil {
+					return
+				}
+			}
+		}
+		select {
+		case <-c.stop:
+			if !ch.eof {
+				c.stopNow(cur)
+				return
+			}
+		default:
 		}
 		if ch.eof {
 			if cur, long = c.endInput(cur, ch, long); cur == nil {
@@ -234,6 +253,9 @@ func (c *cutter) add(cur *block, data []byte, long bool) (*block, bool) {
 		n := len(cur.in)
 		cur.in = append(cur.in, data...)
 		if k := bytes.LastIndexByte(data, '\n'); k >= 0 {
+			if cur.lastNL < 0 {
+				c.since = time.Now()
+			}
 			cur.lastNL = n + k
 		}
 		data = nil

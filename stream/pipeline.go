@@ -25,7 +25,7 @@ type config struct {
 	scoresKey, topKey          field
 	unsure                     string
 	jobs, blockSize, maxLine   int
-	pause                      time.Duration
+	pause, maxWait             time.Duration
 	minConf                    float64
 	sw                         *Switch
 	keep, drop                 map[string]bool
@@ -85,6 +85,7 @@ func newConfig(o Options) (*config, error) {
 	if c.pause <= 0 {
 		c.pause = DefaultPause
 	}
+	c.maxWait = 10 * c.pause
 	if o.MinConfidence < 0 || o.MinConfidence > 1 || math.IsNaN(o.MinConfidence) {
 		return nil, fmt.Errorf("stream: minimum confidence %v out of range 0..1", o.MinConfidence)
 	}
@@ -503,7 +504,8 @@ func Run(ctx context.Context, opts Options, inputs []string, stdin io.Reader, st
 	window := max(2, cfg.jobs*blocksPerWorker)
 	free := make(chan *block, window)
 	for range window {
-		free <- &block{lastNL: -1}
+		// Sized so that a full block does not grow by doubling.
+		free <- &block{lastNL: -1, in: make([]byte, 0, cfg.blockSize+chunkSize)}
 	}
 	abortCtx, abort := context.WithCancelCause(context.Background())
 	defer abort(nil)
