@@ -73,6 +73,10 @@ func (e *FormatError) Error() string {
 		b.WriteString(strconv.Quote(e.Tensor))
 		b.WriteString(": ")
 	}
+	if e.Err == nil {
+		b.WriteString("bad model file")
+		return b.String()
+	}
 	// The sentinels carry the package prefix already written above.
 	b.WriteString(strings.TrimPrefix(e.Err.Error(), "model: "))
 	return b.String()

@@ -357,3 +357,44 @@ func TestSafetensorsReference(t *testing.T) {
 		}
 	})
 }
+
+// TestFixtureFoldMatchesFoldModel checks the fixture's fold tables, made by
+// the float64 reference stFold, against FoldModel's (the CPU's kernels, in
+// float32): F32 entries agree to float32 rounding of a 16-term dot product,
+// and F16 entries are the same half or a neighbour (the two sums may round
+// to opposite sides of a half-way point). It also checks FoldModel's
+// binary16 conversion against the independent stHalf.
+func TestFixtureFoldMatchesFoldModel(t *testing.T) {
+	m, err := Open(fixturePath)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer m.Close()
+	for _, half := range []bool{false, true} {
+		k := &Model{Config: m.Config, Emb: m.Emb, Convs: m.Convs, Vocab: m.Vocab}
+		FoldModel(k, half)
+		ref := &Model{Config: m.Config, Emb: m.Emb, Convs: m.Convs, Vocab: m.Vocab}
+		stFold(ref, half)
+		for i := range k.Fold {
+			if half {
+				for j, h := range k.Fold[i].F16 {
+					// One unit in the last place of a half is 2^-10 of its
+					// magnitude (2^-24 for subnormals).
+					a, b := stHalfValue(h), stHalfValue(m.Fold[i].F16[j])
+					if math.Abs(a-b) > math.Ldexp(max(math.Abs(a), math.Abs(b)), -10)+math.Ldexp(1, -24) {
+						t.Fatalf("fold.%d[%d]: FoldModel %#04x, fixture %#04x", i, j, h, m.Fold[i].F16[j])
+					}
+				}
+				continue
+			}
+			for j, x := range k.Fold[i].F32 {
+				if r := ref.Fold[i].F32[j]; math.Abs(float64(x-r)) > 1e-6*(1+math.Abs(float64(r))) {
+					t.Fatalf("fold.%d[%d]: FoldModel %v, reference %v", i, j, x, r)
+				}
+				if got, want := F32ToF16(x), stHalf(float64(x)); got != want {
+					t.Fatalf("F32ToF16(%v) = %#04x, reference %#04x", x, got, want)
+				}
+			}
+		}
+	}
+}

@@ -281,6 +281,9 @@ func (s *schema) build(m *Model) error {
 		return formatErr(TensorVocabOffsets, ErrSchema, "shape %v, want [V+1]", offsT.Shape)
 	}
 	nWords := offsT.Shape[0] - 1
+	if nWords > math.MaxInt32-1 {
+		return formatErr(TensorVocabOffsets, ErrVocab, "%d words; the index holds at most %d", nWords, math.MaxInt32-1)
+	}
 	t, err := s.get(TensorVocabOffsets, "I64", nWords+1)
 	if err != nil {
 		return err
@@ -295,16 +298,8 @@ func (s *schema) build(m *Model) error {
 		return err
 	}
 	blob := t.Data
-	if offs[0] != 0 {
-		return formatErr(TensorVocabOffsets, ErrVocab, "first offset %d, want 0", offs[0])
-	}
-	for i := 1; i < len(offs); i++ {
-		if offs[i] < offs[i-1] {
-			return formatErr(TensorVocabOffsets, ErrVocab, "offset %d (%d) is below offset %d (%d)", i, offs[i], i-1, offs[i-1])
-		}
-	}
-	if last := offs[len(offs)-1]; last != int64(len(blob)) {
-		return formatErr(TensorVocabOffsets, ErrVocab, "last offset %d, but the word bytes are %d long", last, len(blob))
+	if err := checkOffsets(offs, len(blob)); err != nil {
+		return err
 	}
 	idxT, ok := s.byName[TensorVocabIndex]
 	if !ok {
@@ -322,10 +317,8 @@ func (s *schema) build(m *Model) error {
 		return err
 	}
 	index := viewI32(t.Data)
-	for i, e := range index {
-		if e < 0 || int(e) > nWords {
-			return formatErr(TensorVocabIndex, ErrVocab, "entry %d is %d, outside 0..%d", i, e, nWords)
-		}
+	if err := checkIndex(index, nWords); err != nil {
+		return err
 	}
 	m.Vocab = &Vocab{blob: blob, offs: offs, index: index, buckets: cfg.Buckets}
 
@@ -369,6 +362,38 @@ func (s *schema) build(m *Model) error {
 		return err
 	}
 	return s.buildFold(m, rows)
+}
+
+// checkOffsets checks that the word offsets start at 0, never decrease and
+// end at the blob's end, so that every Vocab.Word slice is in bounds. It
+// reads 8 bytes per word: the one part of opening that grows with the
+// vocabulary, with checkIndex (see BenchmarkOpen).
+func checkOffsets(offs []int64, blobLen int) error {
+	if offs[0] != 0 {
+		return formatErr(TensorVocabOffsets, ErrVocab, "first offset %d, want 0", offs[0])
+	}
+	prev := int64(0)
+	for i, o := range offs {
+		if o < prev {
+			return formatErr(TensorVocabOffsets, ErrVocab, "offset %d (%d) is below offset %d (%d)", i, o, i-1, prev)
+		}
+		prev = o
+	}
+	if prev != int64(blobLen) {
+		return formatErr(TensorVocabOffsets, ErrVocab, "last offset %d, but the word bytes are %d long", prev, blobLen)
+	}
+	return nil
+}
+
+// checkIndex checks that every index entry is 0 (empty) or a word number
+// plus one, so that Vocab.Lookup stays in bounds.
+func checkIndex(index []int32, nWords int) error {
+	for i, e := range index {
+		if uint32(e) > uint32(nWords) {
+			return formatErr(TensorVocabIndex, ErrVocab, "entry %d is %d, outside 0..%d", i, e, nWords)
+		}
+	}
+	return nil
 }
 
 // buildFold picks up the optional fold tables: one per width or none, all
@@ -420,11 +445,25 @@ func (s *schema) buildFold(m *Model, rows int) error {
 	return nil
 }
 
+// firstNonFinite32 returns the index of the first NaN or infinity in v, or
+// -1. A float32 is not finite when its exponent bits are all ones; adding 1
+// to the exponent field then carries into the sign bit's position, so
+// blocks are scanned without a branch per element by OR-ing those carries.
 func firstNonFinite32(v []float32) int {
-	for i, x := range v {
-		// Exponent all ones: infinity or NaN.
-		if math.Float32bits(x)&0x7f800000 == 0x7f800000 {
-			return i
+	const block = 256
+	for lo := 0; lo < len(v); lo += block {
+		blk := v[lo:min(lo+block, len(v))]
+		var acc uint32
+		for _, x := range blk {
+			acc |= math.Float32bits(x)&0x7f800000 + 0x00800000
+		}
+		if acc&0x80000000 == 0 {
+			continue
+		}
+		for i, x := range blk {
+			if math.Float32bits(x)&0x7f800000 == 0x7f800000 {
+				return lo + i
+			}
 		}
 	}
 	return -1

@@ -640,3 +640,51 @@ func BenchmarkOpen(b *testing.B) {
 		})
 	}
 }
+
+// BenchmarkVocabChecks times the two checks of Open that read every word's
+// offset and every index slot, for a 100,000-word vocabulary: the part of
+// BenchmarkOpen that grows with the vocabulary.
+func BenchmarkVocabChecks(b *testing.B) {
+	ws := make([]string, 100000)
+	for i := range ws {
+		ws[i] = fmt.Sprintf("word%06d", i)
+	}
+	v := NewVocab(ws, 10)
+	b.ReportAllocs()
+	b.SetBytes(int64(8*len(v.offs) + 4*len(v.index)))
+	for b.Loop() {
+		if checkOffsets(v.offs, len(v.blob)) != nil || checkIndex(v.index, v.Len()) != nil {
+			b.Fatal("valid vocabulary rejected")
+		}
+	}
+}
+
+func TestFirstNonFinite(t *testing.T) {
+	v := make([]float32, 1000)
+	for i := range v {
+		v[i] = float32(i) - 500.25
+	}
+	v[17] = math.MaxFloat32
+	v[18] = -math.MaxFloat32
+	v[19] = math.SmallestNonzeroFloat32
+	if i := firstNonFinite32(v); i != -1 {
+		t.Fatalf("finite values: got %d", i)
+	}
+	for _, bad := range []float32{float32(math.NaN()), float32(math.Inf(1)), float32(math.Inf(-1)), math.Float32frombits(0xffc00001)} {
+		for _, at := range []int{0, 255, 256, 511, 999} {
+			w := slices.Clone(v)
+			w[at] = bad
+			w[999-at/2] = bad // a later one must not be reported first
+			if i := firstNonFinite32(w); i != min(at, 999-at/2) {
+				t.Errorf("%v at %d: got %d", bad, at, i)
+			}
+		}
+	}
+	h := []uint16{0x3c00, 0x7bff, 0xfbff, 0x0001, 0x7c00}
+	if i := firstNonFinite16(h); i != 4 {
+		t.Errorf("half infinity at 4: got %d", i)
+	}
+	if i := firstNonFinite16(h[:4]); i != -1 {
+		t.Errorf("finite halves: got %d", i)
+	}
+}
