@@ -5,6 +5,7 @@
 //
 //	go run ./testdata/bench/genlog.go -n 1000000 -seed 1 > log.jsonl
 //	go run ./testdata/bench/genlog.go -labelled -vocab 50000 -n 300000 -seed 2 > train.jsonl
+//	go run ./testdata/bench/genlog.go -words -vocab 50000 > words.txt
 //
 // Plain mode writes one JSON object a line with ts, room, user, text and a
 // nested meta object. With -labelled it writes {"text": ..., "label": ...}
@@ -65,6 +66,7 @@ func run(args []string, stdout, stderr io.Writer) error {
 	vocab := fs.Int("vocab", 5000, "number of distinct words")
 	s := fs.Float64("zipf", 1.1, "Zipf exponent s (> 0)")
 	labelled := fs.Bool("labelled", false, `write {"text","label"} training records instead of a chat log`)
+	words := fs.Bool("words", false, "write the vocabulary, one word a line, most frequent first")
 	if err := fs.Parse(args); err != nil {
 		return err
 	}
@@ -78,8 +80,15 @@ func run(args []string, stdout, stderr io.Writer) error {
 	case !(*s > 0) || *s > 10:
 		return fmt.Errorf("-zipf %v: must be in (0, 10]", *s)
 	}
-	g := newGen(*seed, *vocab, *s)
 	w := bufio.NewWriterSize(stdout, 1<<20)
+	if *words {
+		for _, word := range makeWords(*vocab) {
+			w.Write(word)
+			w.WriteByte('\n')
+		}
+		return w.Flush()
+	}
+	g := newGen(*seed, *vocab, *s)
 	var line []byte
 	for i := 0; i < *n; i++ {
 		if *labelled {

@@ -11,7 +11,8 @@
 # peak RSS, and (4) prints a table. Each figure is the best of --repeat runs
 # (default 3): the machine is shared and noise only ever makes a run slower.
 # Records/s and MB/s are counted on the uncompressed log for every input, so
-# plain and zstd rows compare directly. For a pipeline (zstd -dc | jq) the
+# plain and zstd rows compare directly; "cpu s" is user + system time of that
+# best run, to show what a loaded machine gave it. For a pipeline (zstd -dc | jq) the
 # peak RSS is that of its largest process. Needs: go, jq, zstd, GNU time
 # (Debian's `time`), and /usr/bin/python3 with python3-torch for the last row.
 set -euo pipefail
@@ -30,7 +31,7 @@ while (($#)); do
 	--repeat) REPEAT=$2; shift ;;
 	--jobs | -j) JOBS=$2; shift ;;
 	--no-torch) SKIP_TORCH=1 ;;
-	-h | --help) sed -n '2,17p' "$0" | sed 's/^# \{0,1\}//'; exit 0 ;;
+	-h | --help) awk 'NR > 1 && /^#/ { sub(/^# ?/, ""); print; next } NR > 1 { exit }' "$0"; exit 0 ;;
 	*) echo "run.sh: unknown argument $1; try: run.sh --quick" >&2; exit 2 ;;
 	esac
 	shift
@@ -43,6 +44,9 @@ mkdir -p "$CACHE"
 # guesses (--vocab, the vocabulary cap, especially). Fix this one function
 # when the command lands; nothing else in the script depends on its flags.
 # Speed does not depend on how good the model is, so one epoch is enough.
+# If training fails, the model is built untrained (random weights over the
+# generator's 50,000 words, folded) by testdata/bench/mkmodel.go, which has
+# the same shape and so the same speed; the table says which was used.
 TRAIN_RECORDS=300000 # enough for nearly all 50,000 words to occur (Zipf s=1.1)
 make_d300_model() { # $1 = model file to write, $2 = labelled training file
 	"$CONVTAG" train -o "$1" --dim 300 --widths 3,4,5 --filters 100 \
@@ -60,9 +64,12 @@ if [[ ! -x /usr/bin/time ]]; then
 fi
 
 # (1) build
-CONVTAG=$CACHE/convtag
-echo "building convtag" >&2
-go build -o "$CONVTAG" ./cmd/convtag
+# CONVTAG=/path/to/binary skips the build (to compare versions).
+if [[ -z ${CONVTAG:-} ]]; then
+	CONVTAG=$CACHE/convtag
+	echo "building convtag" >&2
+	go build -o "$CONVTAG" ./cmd/convtag
+fi
 HAVE_TAG=1
 # Usable only if it really tags a record (a stub or a missing command fails).
 [[ $(echo '{"text":"the 07:40 boat"}' | "$CONVTAG" tag 2>/dev/null) == *'"tag"'* ]] || HAVE_TAG=0
@@ -70,7 +77,9 @@ HAVE_TAG=1
 # (2) generate (cached by size; the generator is deterministic)
 GEN=$CACHE/genlog
 go build -o "$GEN" ./testdata/bench/genlog.go
-LOG=$CACHE/log-$N.jsonl
+# The name carries the generator's hash, so a changed generator makes a new log.
+GENHASH=$(sha256sum testdata/bench/genlog.go | cut -c1-8)
+LOG=$CACHE/log-$N-$GENHASH.jsonl
 if [[ ! -s $LOG ]]; then
 	echo "generating $LOG" >&2
 	t0=$EPOCHREALTIME
@@ -87,24 +96,25 @@ BYTES=$(stat -c %s "$LOG")
 # The command reads its input itself and writes to /dev/null.
 RESULTS=()
 measure() {
-	local name=$1 input=$2 best="" rss=0 t0 t1 dt m
+	local name=$1 input=$2 best="" rss=0 cpu="" t0 t1 dt m c
 	shift 2
 	for ((r = 0; r < REPEAT; r++)); do
 		t0=$EPOCHREALTIME
-		if ! /usr/bin/time -f "%e %M" -o "$CACHE/time.out" "$@" >/dev/null; then
+		if ! /usr/bin/time -f "%e %M %U %S" -o "$CACHE/time.out" "$@" >/dev/null; then
 			na "$name" "$input" "failed: $*"
 			return 0
 		fi
 		t1=$EPOCHREALTIME
 		dt=$(awk -v a="$t0" -v b="$t1" 'BEGIN{printf "%.6f", b-a}')
 		m=$(awk 'END{print $2}' "$CACHE/time.out")
-		if [[ -z $best ]] || awk -v a="$dt" -v b="$best" 'BEGIN{exit !(a<b)}'; then best=$dt; fi
+		c=$(awk 'END{printf "%.2f", $3+$4}' "$CACHE/time.out")
+		if [[ -z $best ]] || awk -v a="$dt" -v b="$best" 'BEGIN{exit !(a<b)}'; then best=$dt cpu=$c; fi
 		((m > rss)) && rss=$m
 	done
-	RESULTS+=("$name|$input|$best|$rss")
-	echo "  $name ($input): ${best}s, ${rss} KiB" >&2
+	RESULTS+=("$name|$input|$best|$rss|$cpu")
+	echo "  $name ($input): ${best}s, ${rss} KiB, ${cpu} cpu s" >&2
 }
-na() { RESULTS+=("$1|$2|n/a|n/a"); echo "  $1 ($2): n/a, $3" >&2; }
+na() { RESULTS+=("$1|$2|n/a|n/a|n/a"); echo "  $1 ($2): n/a, $3" >&2; }
 
 # first_output CMD...: seconds from start to the first byte of output.
 first_output() {
@@ -119,7 +129,7 @@ measure cat zstd bash -c 'zstd -dc "$1"' _ "$LOG.zst"
 measure "jq -c ." plain jq -c . "$LOG"
 measure "jq -c ." zstd bash -c 'zstd -dc "$1" | jq -c .' _ "$LOG.zst"
 
-D300=$CACHE/model-d300-v50000.safetensors
+D300=$CACHE/model-d300-v50000-$GENHASH.safetensors # delete it to remake it
 FIRST_BUILTIN=n/a FIRST_D300=n/a
 if ((HAVE_TAG)); then
 	measure "convtag built-in" plain "$CONVTAG" tag -j "$JOBS" "$LOG"
@@ -128,8 +138,15 @@ if ((HAVE_TAG)); then
 	if [[ ! -s $D300 ]]; then
 		TRAIN=$CACHE/train-v50000-$TRAIN_RECORDS.jsonl
 		[[ -s $TRAIN ]] || "$GEN" -labelled -vocab 50000 -n "$TRAIN_RECORDS" -seed 2 >"$TRAIN"
-		echo "making the d=300 model (placeholder make_d300_model)" >&2
-		make_d300_model "$D300.tmp" "$TRAIN" && mv "$D300.tmp" "$D300" || echo "run.sh: make_d300_model failed; fix it" >&2
+		echo "making the d=300 model (make_d300_model)" >&2
+		if make_d300_model "$D300.tmp" "$TRAIN"; then
+			mv "$D300.tmp" "$D300" && echo trained >"$D300.how"
+		else
+			echo "run.sh: make_d300_model failed (fix it); building an untrained model of the same shape" >&2
+			"$GEN" -words -vocab 50000 >"$CACHE/words-50000.txt"
+			go run ./testdata/bench/mkmodel.go -words "$CACHE/words-50000.txt" -dim 300 -filters 100 \
+				-widths 3,4,5 -o "$D300.tmp" && mv "$D300.tmp" "$D300" && echo "untrained (mkmodel.go)" >"$D300.how"
+		fi
 	fi
 	if [[ -s $D300 ]]; then
 		measure "convtag d=300" plain "$CONVTAG" tag -m "$D300" -j "$JOBS" "$LOG"
@@ -146,12 +163,13 @@ else
 	done
 fi
 
-TORCH=n/a
+TORCH=n/a TORCH_CPU=n/a
 if ((!SKIP_TORCH)); then
 	echo "  pytorch d=300 (pre-tokenized ids, $N sentences)" >&2
 	if out=$(/usr/bin/python3 testdata/bench/torch_bench.py -n "$N" --threads 2 --batch 64); then
 		echo "  $out" >&2
 		TORCH=$(sed -n 's/.*sentences_per_s=\([0-9]*\).*/\1/p' <<<"$out")
+		TORCH_CPU=$(sed -n 's/.*cpu_seconds=\([0-9.]*\).*/\1/p' <<<"$out")
 	else
 		echo "run.sh: torch_bench.py failed (python3-torch installed?)" >&2
 	fi
@@ -160,26 +178,27 @@ fi
 # (4) table
 printf '\nconvtag benchmark: %d records, %.1f MB uncompressed, best of %d, -j %s, %s\n' \
 	"$N" "$(awk -v b="$BYTES" 'BEGIN{print b/1e6}')" "$REPEAT" "$JOBS" "$(date -u +%FT%TZ)"
-printf '%-18s %-6s %12s %9s %13s %9s\n' tool input records/s MB/s "peak RSS MB" "vs jq"
+printf '%-18s %-6s %12s %9s %13s %7s %9s\n' tool input records/s MB/s "peak RSS MB" "cpu s" "vs jq"
 declare -A JQ
 for row in "${RESULTS[@]}"; do
-	IFS='|' read -r name input secs rss <<<"$row"
+	IFS='|' read -r name input secs rss cpu <<<"$row"
 	[[ $name == "jq -c ." ]] && JQ[$input]=$secs
 done
 D300_RPS=""
 for row in "${RESULTS[@]}"; do
-	IFS='|' read -r name input secs rss <<<"$row"
+	IFS='|' read -r name input secs rss cpu <<<"$row"
 	if [[ $secs == n/a ]]; then
-		printf '%-18s %-6s %12s %9s %13s %9s\n' "$name" "$input" n/a n/a n/a n/a
+		printf '%-18s %-6s %12s %9s %13s %7s %9s\n' "$name" "$input" n/a n/a n/a n/a n/a
 		continue
 	fi
-	awk -v n="$N" -v b="$BYTES" -v s="$secs" -v k="$rss" -v j="${JQ[$input]:-}" -v name="$name" -v inp="$input" 'BEGIN{
+	awk -v n="$N" -v b="$BYTES" -v s="$secs" -v k="$rss" -v j="${JQ[$input]:-}" -v name="$name" -v inp="$input" -v c="$cpu" 'BEGIN{
 		ratio = (j == "" ? "n/a" : sprintf("%.2fx", j / s))
-		printf "%-18s %-6s %12.0f %9.1f %13.1f %9s\n", name, inp, n / s, b / s / 1e6, k / 1024, ratio }'
+		printf "%-18s %-6s %12.0f %9.1f %13.1f %7s %9s\n", name, inp, n / s, b / s / 1e6, k / 1024, c, ratio }'
 	[[ $name == "convtag d=300" && $input == plain ]] && D300_RPS=$(awk -v n="$N" -v s="$secs" 'BEGIN{printf "%.0f", n/s}')
 done
-printf '%-18s %-6s %12s\n' "pytorch d=300" ids "$TORCH"
-printf '\nfirst output: built-in %s s, d=300 %s s\n' "$FIRST_BUILTIN" "$FIRST_D300"
+printf '%-18s %-6s %12s %9s %13s %7s\n' "pytorch d=300" ids "$TORCH" - - "$TORCH_CPU"
+printf '\non zstd input the cat row is `zstd -dc`, and jq reads from `zstd -dc |`; d=300 model: %s\n' "$(cat "$D300.how" 2>/dev/null || echo none)"
+printf 'first output: built-in %s s, d=300 %s s\n' "$FIRST_BUILTIN" "$FIRST_D300"
 if [[ -n $D300_RPS && $TORCH != n/a ]]; then
 	awk -v a="$D300_RPS" -v b="$TORCH" 'BEGIN{printf "convtag d=300 / pytorch d=300: %.1fx (sentences/s)\n", a / b}'
 fi
