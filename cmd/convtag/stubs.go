@@ -4,9 +4,7 @@ import "github.com/spf13/cobra"
 
 // Commands that later work builds. Each says so and exits non-zero.
 func init() {
-	for _, c := range []struct{ name, short string }{
-		{"eval", "Evaluate a model on labelled records"},
-	} {
+	for _, c := range []struct{ name, short string }{} {
 		commands = append(commands, func(*app) *cobra.Command {
 			return &cobra.Command{Use: c.name, Short: c.short + " (not yet built)", RunE: notYet(c.name)}
 		})

@@ -1,9 +1,8 @@
 // Package metrics owns the figures that say how good a classifier is on
 // labelled data: accuracy, per-label precision, recall and F1, macro-F1,
 // the confusion matrix, calibration (expected calibration error and a
-// reliability table), confidence thresholds, precision-recall curves,
-// stratified k-fold assignment and mean ± standard deviation over folds,
-// and the plots of them (plot.go).
+// reliability table), confidence thresholds, precision-recall curves and
+// mean ± standard deviation over folds. Sub-package plots draws them.
 //
 // Its input is plain numbers: for each record the index of its true label
 // and the classifier's probability per label. It knows nothing of models,

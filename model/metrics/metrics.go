@@ -4,7 +4,6 @@ import (
 	"errors"
 	"fmt"
 	"math"
-	"math/rand/v2"
 	"slices"
 	"strconv"
 )
@@ -16,12 +15,11 @@ const Bins = 10
 // Levels are the confidence thresholds of the threshold tables.
 var Levels = []float64{0.50, 0.55, 0.60, 0.65, 0.70, 0.75, 0.80, 0.85, 0.90, 0.95, 0.99}
 
-// Errors of Evaluate and StratifiedFolds.
+// Errors of Evaluate.
 var (
 	ErrNoRecords = errors.New("metrics: no records")
 	ErrShape     = errors.New("metrics: probabilities do not match the labels")
 	ErrGold      = errors.New("metrics: true label out of range")
-	ErrFolds     = errors.New("metrics: bad number of folds")
 )
 
 // Fraction is a ratio that may be undefined (NaN), for example the
@@ -538,42 +536,6 @@ func PRCurve(gold []int, probs [][]float32, label int) ([]PRPoint, Fraction) {
 		return pts, Fraction(math.NaN())
 	}
 	return pts, Fraction(ap)
-}
-
-// StratifiedFolds assigns each record to one of k folds so that every
-// label's records are spread as evenly as possible: each label's records
-// are shuffled (seeded by seed and the label) and, labels in order, dealt
-// to folds 0, 1, …, k−1, 0, … in turn. Every fold then differs from
-// another by at most one record of each label and one record in all. The
-// same labels, k and seed give the same folds. It returns the fold of each
-// record.
-func StratifiedFolds(labels []int, k int, seed uint64) ([]int, error) {
-	if k < 2 || k > len(labels) {
-		return nil, fmt.Errorf("%w: %d for %d records (want 2..%d)", ErrFolds, k, len(labels), len(labels))
-	}
-	byLabel := map[int][]int{}
-	for i, l := range labels {
-		byLabel[l] = append(byLabel[l], i)
-	}
-	keys := slices.Sorted(func(yield func(int) bool) {
-		for l := range byLabel {
-			if !yield(l) {
-				return
-			}
-		}
-	})
-	fold := make([]int, len(labels))
-	next := 0
-	for _, l := range keys {
-		g := byLabel[l]
-		rng := rand.New(rand.NewPCG(seed, uint64(l)))
-		rng.Shuffle(len(g), func(i, j int) { g[i], g[j] = g[j], g[i] })
-		for _, i := range g {
-			fold[i] = next
-			next = (next + 1) % k
-		}
-	}
-	return fold, nil
 }
 
 // Spread is a mean and sample standard deviation over folds.

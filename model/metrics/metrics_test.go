@@ -280,50 +280,6 @@ func TestShortestIn(t *testing.T) {
 	}
 }
 
-func TestStratifiedFolds(t *testing.T) {
-	var labels []int
-	for i := range 103 {
-		labels = append(labels, []int{0, 0, 0, 1, 2, 2}[i%6])
-	}
-	for _, k := range []int{2, 5, 10} {
-		f, err := StratifiedFolds(labels, k, 7)
-		if err != nil {
-			t.Fatal(err)
-		}
-		g, _ := StratifiedFolds(labels, k, 7)
-		if !slices.Equal(f, g) {
-			t.Errorf("k=%d: same seed gave different folds", k)
-		}
-		size := make([]int, k)
-		per := map[int][]int{}
-		for i, x := range f {
-			size[x]++
-			if per[labels[i]] == nil {
-				per[labels[i]] = make([]int, k)
-			}
-			per[labels[i]][x]++
-		}
-		if slices.Max(size)-slices.Min(size) > 1 {
-			t.Errorf("k=%d: fold sizes %v", k, size)
-		}
-		for l, c := range per {
-			if slices.Max(c)-slices.Min(c) > 1 {
-				t.Errorf("k=%d label %d: per-fold counts %v", k, l, c)
-			}
-		}
-	}
-	a, _ := StratifiedFolds(labels, 5, 1)
-	b, _ := StratifiedFolds(labels, 5, 2)
-	if slices.Equal(a, b) {
-		t.Error("different seeds gave the same folds")
-	}
-	for _, k := range []int{0, 1, 104} {
-		if _, err := StratifiedFolds(labels, k, 1); err == nil {
-			t.Errorf("k=%d: no error", k)
-		}
-	}
-}
-
 func TestEvaluateErrors(t *testing.T) {
 	for _, c := range []struct {
 		name  string

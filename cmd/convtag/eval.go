@@ -1,0 +1,837 @@
+package main
+
+import (
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"math"
+	"path/filepath"
+	"runtime"
+	"slices"
+	"strconv"
+	"strings"
+
+	"github.com/spf13/cobra"
+	"github.com/spf13/pflag"
+
+	"convtag/model"
+	"convtag/model/builtin"
+	"convtag/model/metrics"
+	"convtag/model/metrics/plots"
+	"convtag/model/nb"
+	"convtag/stream"
+)
+
+func init() { commands = append(commands, newEvalCmd) }
+
+// baselineKind names the baseline in reports.
+const baselineKind = "naive Bayes"
+
+type evalFlags struct {
+	model, format, labelKey, plots, plotFormat, baselineTrain string
+	textKeys                                                  []string
+	asJSON, noBaseline                                        bool
+	target                                                    float64
+	folds                                                     int
+	train                                                     trainFlags // for --folds
+}
+
+func newEvalCmd(a *app) *cobra.Command {
+	var f evalFlags
+	c := &cobra.Command{
+		Use:   "eval [-m MODEL] [flags] FILE...",
+		Short: "Evaluate a model on labelled records",
+		Long: `eval scores a model on labelled records (read as train reads them: the same
+--text-key, --label-key and --format, plain or compressed) and prints how
+good it is: accuracy, macro-F1, precision, recall and F1 per label, the
+confusion matrix, calibration (expected calibration error over 10 equal-width
+confidence bins and the reliability table) and, for thresholds from 0.50 to
+0.99, what share of records keeps its tag and how precise the kept tags are.
+The same figures are given for the naive-Bayes baseline that train stores in
+the model file (or one fitted on --baseline-train FILE).
+
+--target-precision P finds the lowest confidence threshold at which the tags
+kept reach precision P on these records; pass it to tag --min-confidence.
+--plots DIR draws the confusion matrix, the reliability diagram, the
+precision-recall curves and the learning curve of the model's training.
+
+--folds K instead trains K networks and baselines by stratified K-fold
+cross-validation on the FILEs (with the training flags, as train takes them)
+and reports each fold and the mean ± standard deviation.
+
+Records whose label the model does not know are counted and left out of the
+figures. Records with several labels are scored on the first.
+
+` + exitHelp,
+		Example: `  convtag eval -m ferry.safetensors testdata/demo/dev.jsonl
+  convtag eval -m ferry.safetensors --target-precision 0.95 --plots plots/ dev.jsonl
+  convtag eval -m ferry.safetensors --json dev.jsonl | jq .macro_f1
+  convtag eval --folds 10 --epochs 10 --format tsv sentences.tsv`,
+		Args: cobra.ArbitraryArgs,
+		RunE: func(cmd *cobra.Command, args []string) error {
+			f.train.dimSet = cmd.Flags().Changed("dim")
+			if err := f.check(cmd, args); err != nil {
+				return err
+			}
+			if f.folds > 0 {
+				return runFolds(a, &f, args)
+			}
+			return runEval(a, &f, args)
+		},
+	}
+	fl := c.Flags()
+	fl.StringVarP(&f.model, "model", "m", "", "model file (default: the built-in model)")
+	fl.StringArrayVar(&f.textKeys, "text-key", []string{"text"}, "dotted path of the text in a JSON record; repeat to join several")
+	fl.StringVar(&f.labelKey, "label-key", "label", "dotted path of the label (a string or an array of strings)")
+	fl.StringVar(&f.format, "format", stream.LabelledJSONL, "input format: jsonl or tsv (label<TAB>text)")
+	fl.BoolVar(&f.asJSON, "json", false, "print the figures as one JSON object")
+	fl.Float64Var(&f.target, "target-precision", 0, "find the lowest confidence threshold whose kept tags reach this precision")
+	fl.StringVar(&f.plots, "plots", "", "write the figures as images into this directory")
+	fl.StringVar(&f.plotFormat, "plot-format", "png", "image format of --plots: png or svg")
+	fl.StringVar(&f.baselineTrain, "baseline-train", "", "fit the naive-Bayes baseline on these labelled records instead of using the stored one")
+	fl.BoolVar(&f.noBaseline, "no-baseline", false, "leave out the baseline")
+	fl.IntVar(&f.folds, "folds", 0, "cross-validate training itself with this many stratified folds (needs no model)")
+	addFoldTrainFlags(fl, &f.train)
+	return c
+}
+
+// addFoldTrainFlags adds the training flags --folds uses, with train's
+// names and defaults.
+func addFoldTrainFlags(fl *pflag.FlagSet, t *trainFlags) {
+	fl.Float64Var(&t.devFraction, "dev-fraction", 0.1, "with --folds: share of each training part held out for early stopping")
+	fl.IntVar(&t.dim, "dim", model.DefaultDim, "with --folds: embedding size")
+	fl.IntSliceVar(&t.widths, "widths", model.DefaultWidths, "with --folds: convolution window widths")
+	fl.IntVar(&t.filters, "filters", model.DefaultFilters, "with --folds: filters per width")
+	fl.IntVar(&t.hidden, "hidden", 0, "with --folds: size of a ReLU hidden layer; 0 for none")
+	fl.IntVar(&t.epochs, "epochs", model.DefaultEpochs, "with --folds: most epochs")
+	fl.IntVar(&t.patience, "patience", model.DefaultPatience, "with --folds: epochs without a better dev accuracy before stopping; 0 never")
+	fl.IntVar(&t.batch, "batch", model.DefaultBatch, "with --folds: mini-batch size")
+	fl.Uint64Var(&t.seed, "seed", 1, "with --folds: seed for the folds, initialisation, splits, shuffling and dropout")
+	fl.IntVarP(&t.jobs, "jobs", "j", 0, "with --folds: training threads (default: all cores)")
+	fl.StringVar(&t.optimizer, "optimizer", model.OptAdadelta, "with --folds: adadelta or adam")
+	fl.Float64Var(&t.lr, "learning-rate", 0, "with --folds: learning rate (default: 1 for adadelta, 0.001 for adam)")
+	fl.IntVar(&t.minCount, "min-count", 2, "with --folds: words seen fewer times share the hash buckets")
+	fl.IntVar(&t.maxWords, "max-words", 0, "with --folds: keep at most this many words; 0 for all")
+	fl.IntVar(&t.buckets, "buckets", model.DefaultBuckets, "with --folds: shared rows for words outside the vocabulary")
+	fl.StringVar(&t.classWeights, "class-weights", "none", "with --folds: none or balanced")
+}
+
+func (f *evalFlags) check(cmd *cobra.Command, args []string) error {
+	if len(args) == 0 {
+		return usageErr("convtag eval -m MODEL FILE...", "eval: no labelled input files")
+	}
+	if f.format != stream.LabelledJSONL && f.format != stream.LabelledTSV {
+		return usageErr("--format jsonl or --format tsv", "eval: unknown --format %q", f.format)
+	}
+	if f.target != 0 && !(f.target > 0 && f.target <= 1) {
+		return usageErr("--target-precision 0.9", "eval: --target-precision %v is not in (0, 1]", f.target)
+	}
+	if f.plotFormat != "png" && f.plotFormat != "svg" {
+		return usageErr("--plot-format png or --plot-format svg", "eval: unknown --plot-format %q", f.plotFormat)
+	}
+	if f.folds == 0 {
+		var set []string
+		cmd.Flags().Visit(func(fl *pflag.Flag) {
+			if strings.HasPrefix(fl.Usage, "with --folds") {
+				set = append(set, "--"+fl.Name)
+			}
+		})
+		if len(set) > 0 {
+			return usageErr("convtag eval --folds 10 "+strings.Join(set, " ")+" FILE", "eval: %s only apply with --folds", strings.Join(set, ", "))
+		}
+		return nil
+	}
+	switch {
+	case f.folds < 2:
+		return usageErr("--folds 10", "eval: --folds %d: need at least 2", f.folds)
+	case f.model != "":
+		return usageErr("convtag eval --folds 10 FILE", "eval: --folds trains its own models; leave out -m")
+	case f.baselineTrain != "" || f.plots != "" || f.target != 0:
+		return usageErr("convtag eval --folds 10 FILE", "eval: --baseline-train, --plots and --target-precision do not apply with --folds")
+	}
+	t := f.train
+	t.output, t.format = "-", stream.LabelledJSONL
+	if err := t.check(args); err != nil {
+		return err
+	}
+	return nil
+}
+
+// labelled reads labelled records for eval and reports the skipped ones,
+// each problem on a line of its own with file and line, then the count.
+func (f *evalFlags) labelled(a *app, files []string) (*stream.LabelledSet, error) {
+	set, err := stream.ReadLabelled(files, stream.LabelledOptions{Format: f.format, TextKeys: f.textKeys, LabelKey: f.labelKey, Stdin: a.stdin})
+	if set != nil {
+		for _, p := range set.Problems {
+			fmt.Fprintf(a.stderr, "convtag: %s\n", p)
+		}
+		if set.Skipped > 0 {
+			fmt.Fprintf(a.stderr, "convtag: %d records skipped (no text, no label or malformed)\n", set.Skipped)
+		}
+		if set.Multi > 0 {
+			fmt.Fprintf(a.stderr, "convtag: %d records have several labels; each is scored on its first\n", set.Multi)
+		}
+	}
+	if err != nil {
+		var ie *stream.InputError
+		if errors.As(err, &ie) {
+			return nil, withCode(exitFailure, err)
+		}
+		return nil, withCode(exitFailure, fmt.Errorf("eval: %w", err))
+	}
+	return set, nil
+}
+
+// scored is a labelled set mapped onto a model's labels.
+type scored struct {
+	texts   []string
+	gold    []int
+	unknown map[string]int // records whose label the model lacks, by label
+}
+
+func mapLabels(set *stream.LabelledSet, labels []string) scored {
+	li := make(map[string]int, len(labels))
+	for i, l := range labels {
+		li[l] = i
+	}
+	s := scored{unknown: map[string]int{}}
+	for _, r := range set.Records {
+		g, ok := li[r.Labels[0]]
+		if !ok {
+			s.unknown[r.Labels[0]]++
+			continue
+		}
+		s.texts = append(s.texts, r.Text)
+		s.gold = append(s.gold, g)
+	}
+	return s
+}
+
+func unknownString(u map[string]int) string {
+	var parts []string
+	for _, l := range slices.Sorted(mapKeys(u)) {
+		parts = append(parts, fmt.Sprintf("%q %d", l, u[l]))
+	}
+	return strings.Join(parts, ", ")
+}
+
+func mapKeys[V any](m map[string]V) func(func(string) bool) {
+	return func(yield func(string) bool) {
+		for k := range m {
+			if !yield(k) {
+				return
+			}
+		}
+	}
+}
+
+// baselineProbs are the baseline's posterior probabilities: the softmax of
+// its log scores.
+func baselineProbs(b *nb.Model, tokens []string) []float32 {
+	s := b.Scores(tokens)
+	mx := math.Inf(-1)
+	for _, v := range s {
+		mx = max(mx, v)
+	}
+	var sum float64
+	for i, v := range s {
+		s[i] = math.Exp(v - mx)
+		sum += s[i]
+	}
+	out := make([]float32, len(s))
+	for i, v := range s {
+		out[i] = float32(v / sum)
+	}
+	return out
+}
+
+// tokenStrings cuts text with tok into strings, as train cuts the
+// baseline's input.
+func tokenStrings(tok *model.Tokenizer, ts *model.Tokens, text string) []string {
+	tok.Tokenize(ts, []byte(text))
+	out := make([]string, ts.Len())
+	for i := range out {
+		out[i] = string(ts.At(i))
+	}
+	return out
+}
+
+// evalOutput is eval's JSON: the network's figures at the top level.
+type evalOutput struct {
+	Model   string   `json:"model"`
+	Files   []string `json:"files"`
+	Skipped int      `json:"skipped"`
+	// UnknownLabels counts the records left out because the model does
+	// not know their label.
+	UnknownLabels map[string]int `json:"unknown_labels,omitempty"`
+	*metrics.Report
+	Baseline *baselineOutput `json:"baseline,omitempty"`
+	Plots    []string        `json:"plots,omitempty"`
+}
+
+type baselineOutput struct {
+	Kind   string `json:"kind"`
+	Source string `json:"source"` // "stored" or the --baseline-train files
+	*metrics.Report
+}
+
+func runEval(a *app, f *evalFlags, args []string) error {
+	m, err := a.loadModel(f.model)
+	if err != nil {
+		return err
+	}
+	defer m.Close()
+	name := f.model
+	if name == "" {
+		name = builtin.Name
+	}
+	set, err := f.labelled(a, args)
+	if err != nil {
+		return err
+	}
+	s := mapLabels(set, m.Labels)
+	if len(s.unknown) > 0 {
+		fmt.Fprintf(a.stderr, "convtag: warning: %d records have labels %s does not know and are not scored: %s\n",
+			len(set.Records)-len(s.gold), name, unknownString(s.unknown))
+	}
+	if len(s.gold) == 0 {
+		return withCode(exitFailure, fmt.Errorf("eval: %s: no record has a label of %s (%s)", strings.Join(args, ", "), name, strings.Join(m.Labels, ", ")))
+	}
+	opt := metrics.Options{TargetPrecision: f.target}
+	p := m.NewPredictor()
+	probs := make([][]float32, len(s.texts))
+	for i, t := range s.texts {
+		probs[i] = slices.Clone(p.Predict([]byte(t)))
+	}
+	rep, err := metrics.Evaluate(m.Labels, s.gold, probs, opt)
+	if err != nil {
+		return withCode(exitFailure, fmt.Errorf("eval: %w", err))
+	}
+	out := evalOutput{Model: name, Files: args, Skipped: set.Skipped, UnknownLabels: s.unknown, Report: rep}
+	if len(out.UnknownLabels) == 0 {
+		out.UnknownLabels = nil
+	}
+
+	var bprobs [][]float32
+	if !f.noBaseline {
+		base, source, err := f.baseline(a, m)
+		if err != nil {
+			return err
+		}
+		if base != nil {
+			tok := m.TokenizerFor()
+			var ts model.Tokens
+			bprobs = make([][]float32, len(s.texts))
+			for i, t := range s.texts {
+				bprobs[i] = baselineProbs(base, tokenStrings(tok, &ts, t))
+			}
+			br, err := metrics.Evaluate(m.Labels, s.gold, bprobs, opt)
+			if err != nil {
+				return withCode(exitFailure, fmt.Errorf("eval: baseline: %w", err))
+			}
+			out.Baseline = &baselineOutput{Kind: baselineKind, Source: source, Report: br}
+		}
+	}
+
+	if f.plots != "" {
+		ps := plots.Set{Title: filepath.Base(name), Report: rep}
+		for c, l := range m.Labels {
+			pts, ap := metrics.PRCurve(s.gold, probs, c)
+			ps.Curves = append(ps.Curves, plots.Curve{Label: l, Points: pts, AveragePrecision: ap})
+		}
+		if sum, ok := m.Meta[model.MetaTraining]; ok {
+			if h, err := plots.ParseHistory([]byte(sum)); err == nil {
+				h.BaselineDevAcc = summaryBaselineAcc(sum)
+				ps.History = h
+			} else {
+				fmt.Fprintf(a.stderr, "convtag: warning: no learning curve drawn: %v\n", err)
+			}
+		}
+		files, err := plots.WriteAll(f.plots, f.plotFormat, ps)
+		if err != nil {
+			return withCode(exitFailure, fmt.Errorf("eval: %w", err))
+		}
+		out.Plots = files
+	}
+
+	if f.asJSON {
+		enc := json.NewEncoder(a.stdout)
+		enc.SetIndent("", "  ")
+		return enc.Encode(out)
+	}
+	return writeEvalText(a.stdout, &out, f.model)
+}
+
+// baseline returns the baseline to score: fitted on --baseline-train, or
+// the one stored in the model file, or nil (with a note) when there is
+// none.
+func (f *evalFlags) baseline(a *app, m *model.Model) (*nb.Model, string, error) {
+	if f.baselineTrain != "" {
+		files := strings.Split(f.baselineTrain, ",")
+		set, err := f.labelled(a, files)
+		if err != nil {
+			return nil, "", err
+		}
+		s := mapLabels(set, m.Labels)
+		if len(s.unknown) > 0 {
+			fmt.Fprintf(a.stderr, "convtag: warning: %d baseline training records have labels the model does not know and are not used: %s\n",
+				len(set.Records)-len(s.gold), unknownString(s.unknown))
+		}
+		tok := m.TokenizerFor()
+		var ts model.Tokens
+		docs := make([][]string, len(s.texts))
+		for i, t := range s.texts {
+			docs[i] = tokenStrings(tok, &ts, t)
+		}
+		b, err := nb.Fit(docs, s.gold, len(m.Labels), 1)
+		if err != nil {
+			return nil, "", withCode(exitFailure, fmt.Errorf("eval: baseline: %w", err))
+		}
+		return b, "fitted on " + strings.Join(files, ", "), nil
+	}
+	enc, ok := m.Meta["baseline"]
+	if !ok {
+		fmt.Fprintf(a.stderr, "convtag: the model file holds no baseline; --baseline-train FILE fits one\n")
+		return nil, "", nil
+	}
+	b, err := nb.Decode([]byte(enc))
+	if err != nil {
+		return nil, "", withCode(exitUsage, fmt.Errorf("eval: stored baseline: %w", err))
+	}
+	if b.Labels() != len(m.Labels) {
+		return nil, "", withCode(exitUsage, fmt.Errorf("eval: stored baseline has %d labels, the model %d", b.Labels(), len(m.Labels)))
+	}
+	return b, "stored in the model file", nil
+}
+
+// summaryBaselineAcc is the baseline's dev accuracy in a training summary,
+// or 0.
+func summaryBaselineAcc(summary string) float64 {
+	var s struct {
+		Baseline struct {
+			DevAccuracy float64 `json:"dev_accuracy"`
+		} `json:"baseline"`
+	}
+	if json.Unmarshal([]byte(summary), &s) != nil {
+		return 0
+	}
+	return s.Baseline.DevAccuracy
+}
+
+// table lays out rows of cells in columns: the first left-aligned, the
+// rest right-aligned, two spaces apart.
+type table struct {
+	rows   [][]string
+	indent string
+}
+
+func (t *table) add(cells ...string) { t.rows = append(t.rows, cells) }
+
+func (t *table) write(b *strings.Builder) {
+	var w []int
+	for _, r := range t.rows {
+		for i, c := range r {
+			if i >= len(w) {
+				w = append(w, 0)
+			}
+			w[i] = max(w[i], len([]rune(c)))
+		}
+	}
+	for _, r := range t.rows {
+		line := t.indent
+		for i, c := range r {
+			pad := strings.Repeat(" ", w[i]-len([]rune(c)))
+			switch {
+			case i == 0:
+				line += c + pad
+			default:
+				line += "  " + pad + c
+			}
+		}
+		b.WriteString(strings.TrimRight(line, " "))
+		b.WriteByte('\n')
+	}
+}
+
+func f3(x float64) string { return strconv.FormatFloat(x, 'f', 3, 64) }
+func f4(x float64) string { return strconv.FormatFloat(x, 'f', 4, 64) }
+
+func frac(x metrics.Fraction) string {
+	if !x.Defined() {
+		return "-"
+	}
+	return f3(float64(x))
+}
+
+func pct(x metrics.Fraction) string {
+	if !x.Defined() {
+		return "-"
+	}
+	return strconv.FormatFloat(100*float64(x), 'f', 1, 64) + "%"
+}
+
+func itoa(n int) string { return strconv.Itoa(n) }
+
+func writeEvalText(w io.Writer, o *evalOutput, modelFlag string) error {
+	var b strings.Builder
+	r := o.Report
+	fmt.Fprintf(&b, "model:    %s (%d labels)\n", o.Model, len(r.Labels))
+	fmt.Fprintf(&b, "records:  %d scored from %s", r.Records, strings.Join(o.Files, ", "))
+	var notes []string
+	if o.Skipped > 0 {
+		notes = append(notes, itoa(o.Skipped)+" skipped")
+	}
+	if n := sumCounts(o.UnknownLabels); n > 0 {
+		notes = append(notes, itoa(n)+" with labels the model lacks")
+	}
+	if len(notes) > 0 {
+		fmt.Fprintf(&b, " (%s)", strings.Join(notes, ", "))
+	}
+	b.WriteString("\n")
+	if o.Baseline != nil {
+		fmt.Fprintf(&b, "baseline: %s, %s\n", o.Baseline.Kind, o.Baseline.Source)
+	}
+	b.WriteString("\n")
+
+	sum := table{}
+	head := []string{"", "network"}
+	if o.Baseline != nil {
+		head = append(head, baselineKind)
+	}
+	sum.add(head...)
+	row := func(name string, get func(*metrics.Report) string) {
+		cells := []string{name, get(r)}
+		if o.Baseline != nil {
+			cells = append(cells, get(o.Baseline.Report))
+		}
+		sum.add(cells...)
+	}
+	row("accuracy", func(x *metrics.Report) string { return f4(x.Accuracy) })
+	row("macro-F1", func(x *metrics.Report) string { return f4(x.MacroF1) })
+	row("ECE (10 bins)", func(x *metrics.Report) string { return f4(x.Calibration.ECE) })
+	row("largest bin gap", func(x *metrics.Report) string { return f4(x.Calibration.MCE) })
+	sum.write(&b)
+
+	perLabel := func(title string, x *metrics.Report) {
+		fmt.Fprintf(&b, "\n%s\n", title)
+		t := table{indent: "  "}
+		t.add("label", "precision", "recall", "F1", "support", "predicted", "avg precision")
+		for _, s := range x.PerLabel {
+			t.add(s.Label, f3(s.Precision), f3(s.Recall), f3(s.F1), itoa(s.Support), itoa(s.Predicted), frac(s.AveragePrecision))
+		}
+		t.write(&b)
+	}
+	confusion := func(title string, x *metrics.Report) {
+		fmt.Fprintf(&b, "\n%s (rows: true label, columns: predicted)\n", title)
+		t := table{indent: "  "}
+		t.add(append([]string{"true \\ predicted"}, x.Labels...)...)
+		for i, l := range x.Labels {
+			cells := []string{l}
+			for _, n := range x.Confusion[i] {
+				cells = append(cells, itoa(n))
+			}
+			t.add(cells...)
+		}
+		t.write(&b)
+	}
+	perLabel("per label, network", r)
+	confusion("confusion, network", r)
+	if o.Baseline != nil {
+		perLabel("per label, "+baselineKind, o.Baseline.Report)
+		confusion("confusion, "+baselineKind, o.Baseline.Report)
+	}
+
+	fmt.Fprintf(&b, "\ncalibration, network: ECE %s over %d equal-width bins of the top label's probability\n", f4(r.Calibration.ECE), len(r.Calibration.Bins))
+	ct := table{indent: "  "}
+	ct.add("confidence", "records", "mean confidence", "accuracy", "gap")
+	for _, bin := range r.Calibration.Bins {
+		gap := "-"
+		if bin.Count > 0 {
+			gap = strconv.FormatFloat(float64(bin.Accuracy)-float64(bin.Confidence), 'f', 3, 64)
+			if !strings.HasPrefix(gap, "-") {
+				gap = "+" + gap
+			}
+		}
+		ct.add(fmt.Sprintf("(%.1f, %.1f]", bin.Lo, bin.Hi), itoa(bin.Count), frac(bin.Confidence), frac(bin.Accuracy), gap)
+	}
+	ct.write(&b)
+
+	b.WriteString("\nthresholds, network: below the threshold a record is tagged unsure (tag --min-confidence)\n")
+	ot := table{indent: "  "}
+	ot.add("threshold", "tagged", "records", "precision", "recall")
+	for _, t := range r.Thresholds.Overall {
+		ot.add(strconv.FormatFloat(t.Threshold, 'f', 2, 64), pct(t.Coverage), itoa(t.Kept), frac(t.Precision), frac(t.Recall))
+	}
+	ot.write(&b)
+	for _, what := range []struct {
+		name string
+		get  func(metrics.ThresholdRow) metrics.Fraction
+	}{
+		{"precision", func(t metrics.ThresholdRow) metrics.Fraction { return t.Precision }},
+		{"recall", func(t metrics.ThresholdRow) metrics.Fraction { return t.Recall }},
+		{"coverage (share of the label's tags kept)", func(t metrics.ThresholdRow) metrics.Fraction { return t.Coverage }},
+	} {
+		fmt.Fprintf(&b, "\n  per label, %s\n", what.name)
+		t := table{indent: "  "}
+		t.add(append([]string{"threshold"}, r.Labels...)...)
+		for i, lv := range metrics.Levels {
+			cells := []string{strconv.FormatFloat(lv, 'f', 2, 64)}
+			for _, lt := range r.Thresholds.PerLabel {
+				cells = append(cells, frac(what.get(lt.Rows[i])))
+			}
+			t.add(cells...)
+		}
+		t.write(&b)
+	}
+
+	if tg := r.Target; tg != nil {
+		fmt.Fprintf(&b, "\ntarget precision %s\n", strconv.FormatFloat(tg.Precision, 'f', -1, 64))
+		op := tg.Overall
+		if op.Reached {
+			fmt.Fprintf(&b, "  all labels: lowest threshold %s: precision %s, recall %s, %s of records tagged\n",
+				strconv.FormatFloat(op.Threshold, 'f', -1, 64), frac(op.Precision), frac(op.Recall), pct(op.Coverage))
+			m := ""
+			if modelFlag != "" {
+				m = " -m " + modelFlag
+			}
+			fmt.Fprintf(&b, "  try: convtag tag%s --min-confidence %s\n", m, strconv.FormatFloat(op.Threshold, 'f', -1, 64))
+		} else {
+			fmt.Fprintf(&b, "  all labels: not reached on these records; the best is precision %s at threshold %s (recall %s)\n",
+				frac(op.Precision), strconv.FormatFloat(op.Threshold, 'f', -1, 64), frac(op.Recall))
+		}
+		t := table{indent: "  "}
+		t.add("label", "threshold", "precision", "recall", "tags kept")
+		for _, l := range tg.PerLabel {
+			thr := strconv.FormatFloat(l.Threshold, 'f', -1, 64)
+			if !l.Reached {
+				thr = "not reached"
+				if l.Kept > 0 {
+					thr += ", best " + frac(l.Precision) + " at " + strconv.FormatFloat(l.Threshold, 'f', -1, 64)
+				}
+			}
+			t.add(l.Label, thr, frac(l.Precision), frac(l.Recall), pct(l.Coverage))
+		}
+		t.write(&b)
+	}
+	if len(o.Plots) > 0 {
+		fmt.Fprintf(&b, "\nplots: %s\n", strings.Join(o.Plots, " "))
+	}
+	_, err := io.WriteString(w, b.String())
+	return err
+}
+
+func sumCounts(m map[string]int) int {
+	n := 0
+	for _, v := range m {
+		n += v
+	}
+	return n
+}
+
+// foldResult is one fold's figures.
+type foldResult struct {
+	Fold     int     `json:"fold"`
+	Train    int     `json:"train"`
+	Dev      int     `json:"dev"`
+	Test     int     `json:"test"`
+	Epochs   int     `json:"best_epoch"`
+	NetAcc   float64 `json:"network_accuracy"`
+	NetF1    float64 `json:"network_macro_f1"`
+	BaseAcc  float64 `json:"baseline_accuracy"`
+	BaseF1   float64 `json:"baseline_macro_f1"`
+	Duration float64 `json:"seconds"`
+}
+
+type foldsOutput struct {
+	Files    []string       `json:"files"`
+	Folds    int            `json:"folds"`
+	Seed     uint64         `json:"seed"`
+	Records  int            `json:"records"`
+	Labels   []string       `json:"labels"`
+	PerFold  []foldResult   `json:"per_fold"`
+	Network  spreadAccF1    `json:"network"`
+	Baseline spreadAccF1    `json:"baseline"`
+	Options  map[string]any `json:"options"`
+}
+
+type spreadAccF1 struct {
+	Accuracy metrics.Spread `json:"accuracy"`
+	MacroF1  metrics.Spread `json:"macro_f1"`
+}
+
+// runFolds cross-validates training: for each of K stratified folds it
+// trains a network (with an inner dev split of the other folds for early
+// stopping) and the baseline (on the same inner training part, as train
+// does) and scores both on the fold.
+func runFolds(a *app, f *evalFlags, args []string) error {
+	set, err := f.labelled(a, args)
+	if err != nil {
+		return err
+	}
+	t := &f.train
+	if t.jobs == 0 {
+		t.jobs = runtime.GOMAXPROCS(0)
+	}
+	tok := model.NewTokenizer(model.TokenizerSettings{})
+	var ts model.Tokens
+	all := make([]tokenized, len(set.Records))
+	for i, r := range set.Records {
+		all[i] = tokenized{tokens: tokenStrings(tok, &ts, r.Text), label: r.Labels[0], text: r.Text}
+	}
+	labels := sortedLabels(all)
+	if len(labels) < 2 {
+		return withCode(exitFailure, fmt.Errorf("eval: %s: need at least 2 different labels, found %d", strings.Join(args, ", "), len(labels)))
+	}
+	if f.folds > len(all) {
+		return usageErr("", "eval: --folds %d but only %d records", f.folds, len(all))
+	}
+	li := labelIndex(all)
+	y := make([]int, len(all))
+	for i, r := range all {
+		y[i] = li[r.label]
+	}
+	for _, l := range labels {
+		if n := countMap(all)[l]; n < f.folds {
+			fmt.Fprintf(a.stderr, "convtag: warning: label %q has %d records, fewer than %d folds: some folds do not test it\n", l, n, f.folds)
+		}
+	}
+	fold := model.StratifiedFolds(y, f.folds, t.seed)
+	out := foldsOutput{Files: args, Folds: f.folds, Seed: t.seed, Records: len(all), Labels: labels,
+		Options: map[string]any{"dim": t.dim, "widths": t.widths, "filters": t.filters, "hidden": t.hidden, "epochs": t.epochs,
+			"patience": t.patience, "batch": t.batch, "optimizer": t.optimizer, "learning_rate": t.lr, "min_count": t.minCount,
+			"max_words": t.maxWords, "buckets": t.buckets, "class_weights": t.classWeights, "dev_fraction": t.devFraction, "jobs": t.jobs}}
+	var na, nf, ba, bf []float64
+	for k := range f.folds {
+		var rest, test []int
+		for i, fk := range fold {
+			if fk == k {
+				test = append(test, i)
+			} else {
+				rest = append(rest, i)
+			}
+		}
+		fr, err := trainFold(t, all, y, labels, rest, test)
+		if err != nil {
+			return withCode(exitFailure, fmt.Errorf("eval: fold %d: %w", k+1, err))
+		}
+		fr.Fold = k + 1
+		out.PerFold = append(out.PerFold, fr)
+		na, nf, ba, bf = append(na, fr.NetAcc), append(nf, fr.NetF1), append(ba, fr.BaseAcc), append(bf, fr.BaseF1)
+		if !f.asJSON {
+			fmt.Fprintf(a.stderr, "convtag: fold %d/%d: network %.4f (macro-F1 %.4f)  %s %.4f (macro-F1 %.4f)  %.1fs\n",
+				k+1, f.folds, fr.NetAcc, fr.NetF1, baselineKind, fr.BaseAcc, fr.BaseF1, fr.Duration)
+		}
+	}
+	out.Network = spreadAccF1{metrics.MeanStd(na), metrics.MeanStd(nf)}
+	out.Baseline = spreadAccF1{metrics.MeanStd(ba), metrics.MeanStd(bf)}
+	if f.asJSON {
+		enc := json.NewEncoder(a.stdout)
+		enc.SetIndent("", "  ")
+		return enc.Encode(out)
+	}
+	return writeFoldsText(a.stdout, &out)
+}
+
+// trainFold trains and scores one fold: rest are the training records'
+// indices, test the fold's.
+func trainFold(t *trainFlags, all []tokenized, y []int, labels []string, rest, test []int) (foldResult, error) {
+	ry := make([]int, len(rest))
+	for i, j := range rest {
+		ry[i] = y[j]
+	}
+	tr, dv := model.StratifiedSplit(ry, t.devFraction, t.seed)
+	pick := func(idx []int) []int {
+		out := make([]int, len(idx))
+		for i, j := range idx {
+			out[i] = rest[j]
+		}
+		return out
+	}
+	trainIdx, devIdx := pick(tr), pick(dv)
+	counts := map[string]int{}
+	for _, i := range trainIdx {
+		for _, w := range all[i].tokens {
+			counts[w]++
+		}
+	}
+	words := model.BuildWords(counts, t.minCount, t.maxWords)
+	cfg := model.Config{Dim: t.dim, Widths: t.widths, Filters: t.filters, Hidden: t.hidden, Buckets: t.buckets}
+	m, err := model.New(cfg, model.TokenizerSettings{}, labels, words, t.seed)
+	if err != nil {
+		return foldResult{}, err
+	}
+	examples := func(idx []int) []model.Example {
+		out := make([]model.Example, len(idx))
+		for i, j := range idx {
+			rows := make([]int32, len(all[j].tokens))
+			for k, w := range all[j].tokens {
+				rows[k] = m.Vocab.Row([]byte(w))
+			}
+			out[i] = model.Example{Rows: rows, Label: y[j]}
+		}
+		return out
+	}
+	trEx, devEx, testEx := examples(trainIdx), examples(devIdx), examples(test)
+	opt := model.TrainOptions{Epochs: t.epochs, Patience: t.patience, Batch: t.batch, Seed: t.seed,
+		Jobs: t.jobs, Opt: t.optimizer, LR: t.lr}
+	if t.patience == 0 {
+		opt.Patience = -1
+	}
+	if t.classWeights == "balanced" {
+		opt.ClassWeights = model.BalancedWeights(trEx, len(labels))
+	}
+	res, err := model.Train(m, trEx, devEx, opt)
+	if err != nil {
+		return foldResult{}, err
+	}
+	p := m.NewPredictor()
+	gold, pred := make([]int, len(test)), make([]int, len(test))
+	for i, e := range testEx {
+		gold[i] = e.Label
+		pred[i], _ = metrics.Predict(p.PredictRows(e.Rows))
+	}
+	fr := foldResult{Train: len(trainIdx), Dev: len(devIdx), Test: len(test), Epochs: res.BestEpoch, Duration: res.Seconds}
+	fr.NetAcc = metrics.Accuracy(gold, pred)
+	fr.NetF1 = foldMacroF1(gold, pred, len(labels))
+
+	docs, ys := make([][]string, len(trainIdx)), make([]int, len(trainIdx))
+	for i, j := range trainIdx {
+		docs[i], ys[i] = all[j].tokens, y[j]
+	}
+	base, err := nb.Fit(docs, ys, len(labels), 1)
+	if err != nil {
+		return foldResult{}, fmt.Errorf("baseline: %w", err)
+	}
+	for i, j := range test {
+		pred[i] = base.Predict(all[j].tokens)
+	}
+	fr.BaseAcc = metrics.Accuracy(gold, pred)
+	fr.BaseF1 = foldMacroF1(gold, pred, len(labels))
+	return fr, nil
+}
+
+func foldMacroF1(gold, pred []int, k int) float64 {
+	return metrics.MacroF1(metrics.PerLabel(metrics.Confusion(gold, pred, k), nil))
+}
+
+func writeFoldsText(w io.Writer, o *foldsOutput) error {
+	var b strings.Builder
+	fmt.Fprintf(&b, "cross-validation: %d stratified folds (seed %d) of %d records from %s\n", o.Folds, o.Seed, o.Records, strings.Join(o.Files, ", "))
+	fmt.Fprintf(&b, "labels: %s\n", strings.Join(o.Labels, ", "))
+	fmt.Fprintf(&b, "each fold: network trained on the other folds less a %.0f%% dev split for early stopping, baseline on the same records\n\n", 100*o.Options["dev_fraction"].(float64))
+	t := table{}
+	t.add("fold", "train", "dev", "test", "best epoch", "network acc", "macro-F1", baselineKind+" acc", "macro-F1")
+	for _, fr := range o.PerFold {
+		t.add(itoa(fr.Fold), itoa(fr.Train), itoa(fr.Dev), itoa(fr.Test), itoa(fr.Epochs), f4(fr.NetAcc), f4(fr.NetF1), f4(fr.BaseAcc), f4(fr.BaseF1))
+	}
+	t.write(&b)
+	b.WriteString("\nmean ± standard deviation over the folds (sample, n-1)\n")
+	s := table{indent: "  "}
+	s.add("", "accuracy", "macro-F1")
+	s.add("network", o.Network.Accuracy.String(), o.Network.MacroF1.String())
+	s.add(baselineKind, o.Baseline.Accuracy.String(), o.Baseline.MacroF1.String())
+	s.write(&b)
+	_, err := io.WriteString(w, b.String())
+	return err
+}
