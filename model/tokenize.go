@@ -80,18 +80,25 @@ const (
 // never empty and always valid UTF-8.
 //
 // ASCII text takes a fast path (its own word segmenter, ASCII lower-casing,
-// no normalisation) that gives exactly the tokens of the general path;
-// tests compare the two.
+// no normalisation) that gives exactly the tokens of the general path. The
+// general path cuts words with the same ASCII segmenter wherever its
+// decision involves only ASCII characters, and with uniseg elsewhere.
+// Tests compare both with uniseg alone.
+//
+// The zero Tokenizer has the zero (default) settings.
 type Tokenizer struct {
-	s    TokenizerSettings
-	fold transform.SpanningTransformer
+	s TokenizerSettings
 }
 
-// NewTokenizer returns a tokenizer with settings s.
-func NewTokenizer(s TokenizerSettings) *Tokenizer {
+// caseFold is Unicode full case folding; x/text documents it as stateless
+// and safe for concurrent use.
+var caseFold transform.SpanningTransformer = func() *cases.Caser {
 	c := cases.Fold()
-	return &Tokenizer{s: s, fold: &c}
-}
+	return &c
+}()
+
+// NewTokenizer returns a tokenizer with settings s.
+func NewTokenizer(s TokenizerSettings) *Tokenizer { return &Tokenizer{s: s} }
 
 // Settings returns the tokenizer's settings.
 func (t *Tokenizer) Settings() TokenizerSettings { return t.s }
@@ -165,31 +172,31 @@ func (t *Tokenizer) tokenizeGeneral(ts *Tokens, text []byte, mode int) {
 func (t *Tokenizer) normalize(ts *Tokens, text []byte) []byte {
 	ts.a = cleanUp(ts.a[:0], text)
 	s := ts.a
-	if norm.NFKC.QuickSpan(s) < len(s) {
-		ts.b = ts.appendNFKC(ts.b[:0], s)
+	if n := norm.NFKC.QuickSpan(s); n < len(s) {
+		ts.b = ts.appendNFKC(ts.b[:0], s, n)
 		s = ts.b
 	}
-	if n, _ := t.fold.Span(s, true); n < len(s) {
+	if n, _ := caseFold.Span(s, true); n < len(s) {
 		dst := ts.c[:0]
 		if cap(dst) == 0 {
 			dst = make([]byte, 0, len(s)+len(s)/2+8)
 		}
-		ts.c, _, _ = transform.Append(t.fold, dst, s)
+		ts.c, _, _ = transform.Append(caseFold, dst, s)
 		s = ts.c
 		fixCherokee(s)
-		if norm.NFKC.QuickSpan(s) < len(s) {
-			ts.a = ts.appendNFKC(ts.a[:0], s) // ts.a is free: s is ts.c
+		if n := norm.NFKC.QuickSpan(s); n < len(s) {
+			ts.a = ts.appendNFKC(ts.a[:0], s, n) // ts.a is free: s is ts.c
 			s = ts.a
 		}
 	}
 	return s
 }
 
-// appendNFKC appends NFKC(src) to dst. It uses ts's norm.Iter rather
-// than norm.Form.Append, which allocates its reordering buffer per call.
-func (ts *Tokens) appendNFKC(dst, src []byte) []byte {
-	// src[:n] is normal and ends at a normalisation boundary.
-	n := norm.NFKC.QuickSpan(src)
+// appendNFKC appends NFKC(src) to dst, given n = norm.NFKC.QuickSpan(src):
+// src[:n] is normal and ends at a normalisation boundary. It uses ts's
+// norm.Iter rather than norm.Form.Append, which allocates its reordering
+// buffer per call.
+func (ts *Tokens) appendNFKC(dst, src []byte, n int) []byte {
 	dst = append(dst, src[:n]...)
 	if ts.iter == nil {
 		ts.iter = new(norm.Iter)

@@ -416,6 +416,22 @@ func TestTokenizeDefaultLimit(t *testing.T) {
 	}
 }
 
+// TestTokenizeZeroValue: the zero Tokenizer and Tokens work, with the
+// default settings.
+func TestTokenizeZeroValue(t *testing.T) {
+	var tk Tokenizer
+	var ts Tokens
+	for _, in := range []string{"Straße nach Øsk", "ASCII only"} {
+		tk.Tokenize(&ts, []byte(in))
+		if got, want := tokStrings(&ts), tokenizeStrings(NewTokenizer(TokenizerSettings{}), in); !reflect.DeepEqual(got, want) {
+			t.Errorf("zero Tokenizer: %q, want %q", got, want)
+		}
+	}
+	if tk.Settings() != (TokenizerSettings{}) || tk.Settings().Limit() != DefaultMaxTokens {
+		t.Errorf("zero Tokenizer settings %+v", tk.Settings())
+	}
+}
+
 // tokSettings are the settings the differential tests compare under.
 var tokSettings = []TokenizerSettings{
 	{}, {KeepPunct: true}, {NoPlaceholders: true}, {KeepPunct: true, NoPlaceholders: true}, {MaxTokens: 3}, {KeepPunct: true, MaxTokens: 1},
