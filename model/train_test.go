@@ -145,7 +145,7 @@ func TestGradientFiniteDifference(t *testing.T) {
 	}
 }
 
-func requireTorch(t *testing.T) {
+func requireTorch(t testing.TB) {
 	t.Helper()
 	err := exec.Command("/usr/bin/python3", "-c", "import torch").Run()
 	if err == nil {
@@ -250,7 +250,7 @@ func TestGradientTorch(t *testing.T) {
 
 // runTorch writes in as JSON to a temporary file, runs the reference
 // script on it and returns its standard output.
-func runTorch(t *testing.T, script string, in any) []byte {
+func runTorch(t testing.TB, script string, in any) []byte {
 	t.Helper()
 	b, err := json.Marshal(in)
 	if err != nil {

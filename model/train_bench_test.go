@@ -1,0 +1,139 @@
+package model
+
+import (
+	"encoding/json"
+	"fmt"
+	"testing"
+
+	"convtag/internal/uci"
+)
+
+// benchData returns the UCI sentences as examples for a model of dimension
+// d with 3 x 100 filters, split 80/20 (stratified, seed 1).
+func benchData(b *testing.B, d int) (*Model, []Example, []Example) {
+	b.Helper()
+	dir, err := uci.CacheDir()
+	if err != nil {
+		b.Fatal(err)
+	}
+	s, err := uci.Fetch(dir)
+	if err != nil {
+		b.Skip(err)
+	}
+	tok := NewTokenizer(TokenizerSettings{})
+	var ts Tokens
+	counts := map[string]int{}
+	labels := make([]int, len(s))
+	for i, x := range s {
+		CountTokens(counts, tok, &ts, []byte(x.Text))
+		if x.Label == "positive" {
+			labels[i] = 1
+		}
+	}
+	cfg := Config{Dim: d, Widths: []int{3, 4, 5}, Filters: 100, Buckets: 1000}
+	m, err := New(cfg, TokenizerSettings{}, []string{"negative", "positive"}, BuildWords(counts, 2, 0), 1)
+	if err != nil {
+		b.Fatal(err)
+	}
+	tr, dv := StratifiedSplit(labels, 0.2, 1)
+	ex := func(idx []int) []Example {
+		var out []Example
+		for _, i := range idx {
+			out = append(out, Example{Rows: m.AppendRows(nil, &ts, []byte(s[i].Text)), Label: labels[i]})
+		}
+		return out
+	}
+	return m, ex(tr), ex(dv)
+}
+
+func tokensOf(ex []Example) int {
+	n := 0
+	for _, e := range ex {
+		n += max(1, len(e.Rows))
+	}
+	return n
+}
+
+// BenchmarkTrainEpoch is one training epoch over 2,400 UCI sentences on
+// 2 workers, 3 x 100 filters, at d = 128 and d = 300. SetBytes counts
+// tokens, so MB/s reads as millions of tokens per second.
+func BenchmarkTrainEpoch(b *testing.B) {
+	for _, d := range []int{128, 300} {
+		b.Run(fmt.Sprintf("d=%d", d), func(b *testing.B) {
+			m, train, _ := benchData(b, d)
+			emb := append([]float32(nil), m.Emb...)
+			b.SetBytes(int64(tokensOf(train)))
+			b.ReportAllocs()
+			for b.Loop() {
+				copy(m.Emb, emb)
+				if _, err := Train(m, train, nil, TrainOptions{Epochs: 1, Patience: -1, Jobs: 2, Seed: 1}); err != nil {
+					b.Fatal(err)
+				}
+			}
+			b.ReportMetric(float64(tokensOf(train))*float64(b.N)/b.Elapsed().Seconds(), "tokens/s")
+		})
+	}
+}
+
+// BenchmarkTrainVsTorch trains 10 epochs over the same 2,400 sentences,
+// same recipe (d = 128, 3 x 100 filters, Adadelta, batch 50, dropout 0.5,
+// no early stopping), in convtag on 2 workers and in PyTorch on 2 threads
+// (testdata/torch_train.py, timed by the script around training only), and
+// reports the ratio of convtag's wall time to PyTorch's in the same run.
+func BenchmarkTrainVsTorch(b *testing.B) {
+	requireTorch(b)
+	m, train, dev := benchData(b, 128)
+	emb := append([]float32(nil), m.Emb...)
+	const epochs = 10
+	for b.Loop() {
+		copy(m.Emb, emb)
+		if _, err := Train(m, train, dev, TrainOptions{Epochs: epochs, Patience: -1, Jobs: 2, Seed: 1}); err != nil {
+			b.Fatal(err)
+		}
+	}
+	goSec := b.Elapsed().Seconds() / float64(b.N)
+	out := runTorch(b, "torch_train.py", map[string]any{"dim": 128, "widths": []int{3, 4, 5}, "filters": 100,
+		"epochs": epochs, "patience": -1, "batch": 50, "dropout": 0.5, "max_norm": 3.0, "optimizer": OptAdadelta,
+		"lr": 1.0, "seed": 1, "labels": 2, "threads": 2,
+		"folds": []map[string]any{{"train": train, "dev": dev, "test": dev, "rows": m.Rows()}}})
+	var res struct{ Seconds float64 }
+	if err := json.Unmarshal(out, &res); err != nil || res.Seconds <= 0 {
+		b.Fatalf("torch_train.py: %v: %s", err, out)
+	}
+	torchSec := res.Seconds
+	b.ReportMetric(goSec, "convtag-s")
+	b.ReportMetric(torchSec, "torch-s")
+	b.ReportMetric(goSec/torchSec, "ratio")
+}
+
+// BenchmarkConvKernel is the training convolution kernel, assembly and
+// plain Go, at d = 128, width 5 (k = 640).
+func BenchmarkConvKernel(b *testing.B) {
+	const d, w = 128, 5
+	k := d * w
+	a := make([]float32, (trRows-1)*d+k)
+	bb := make([]float32, k*trPanel)
+	c := make([]float32, trRows*trPanel)
+	for i := range a {
+		a[i] = float32(i%7) * 0.1
+	}
+	for i := range bb {
+		bb[i] = float32(i%5) * 0.1
+	}
+	for _, tc := range []struct {
+		name string
+		f    func([]float32, int, []float32, int, []float32, int)
+	}{{"asm", trConv}, {"go", trConvGo}} {
+		b.Run(tc.name, func(b *testing.B) {
+			if tc.name == "asm" && !trainAVX2 {
+				b.Skip("no AVX2")
+			}
+			b.SetBytes(int64(4 * len(bb)))
+			b.ReportAllocs()
+			for b.Loop() {
+				tc.f(a, d, bb, k, c, trPanel)
+			}
+			b.ReportMetric(float64(2*trRows*trPanel*k)*float64(b.N)/b.Elapsed().Seconds()/1e9, "GFLOP/s")
+		})
+	}
+}
