@@ -127,7 +127,7 @@ func (in *Info) WriteText(w io.Writer) error {
 	if in.CreatedBy != "" {
 		line("created by", in.CreatedBy)
 	}
-	shown := map[string]bool{MetaFormatVersion: true, MetaLabels: true, MetaConfig: true, MetaTokenizer: true, MetaChecksum: true, MetaCreatedBy: true, MetaTraining: true}
+	shown := map[string]bool{MetaFormat: true, MetaFormatVersion: true, MetaLabels: true, MetaConfig: true, MetaTokenizer: true, MetaChecksum: true, MetaCreatedBy: true, MetaTraining: true}
 	for _, k := range slices.Sorted(maps.Keys(in.Metadata)) {
 		if !shown[k] {
 			line("meta "+k, strconv.Quote(in.Metadata[k]))

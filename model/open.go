@@ -372,15 +372,13 @@ func checkOffsets(offs []int64, blobLen int) error {
 	if offs[0] != 0 {
 		return formatErr(TensorVocabOffsets, ErrVocab, "first offset %d, want 0", offs[0])
 	}
-	prev := int64(0)
-	for i, o := range offs {
-		if o < prev {
-			return formatErr(TensorVocabOffsets, ErrVocab, "offset %d (%d) is below offset %d (%d)", i, o, i-1, prev)
+	for i := 1; i < len(offs); i++ {
+		if offs[i] < offs[i-1] {
+			return formatErr(TensorVocabOffsets, ErrVocab, "offset %d (%d) is below offset %d (%d)", i, offs[i], i-1, offs[i-1])
 		}
-		prev = o
 	}
-	if prev != int64(blobLen) {
-		return formatErr(TensorVocabOffsets, ErrVocab, "last offset %d, but the word bytes are %d long", prev, blobLen)
+	if last := offs[len(offs)-1]; last != int64(blobLen) {
+		return formatErr(TensorVocabOffsets, ErrVocab, "last offset %d, but the word bytes are %d long", last, blobLen)
 	}
 	return nil
 }
@@ -388,6 +386,13 @@ func checkOffsets(offs []int64, blobLen int) error {
 // checkIndex checks that every index entry is 0 (empty) or a word number
 // plus one, so that Vocab.Lookup stays in bounds.
 func checkIndex(index []int32, nWords int) error {
+	var hi uint32 // the largest entry, negative ones counting as huge
+	for _, e := range index {
+		hi = max(hi, uint32(e))
+	}
+	if hi <= uint32(nWords) {
+		return nil
+	}
 	for i, e := range index {
 		if uint32(e) > uint32(nWords) {
 			return formatErr(TensorVocabIndex, ErrVocab, "entry %d is %d, outside 0..%d", i, e, nWords)

@@ -612,6 +612,7 @@ func TestInfo(t *testing.T) {
 // 100,000-word vocabulary (d=128, widths 3, 4, 5 with 100 filters, 10,000
 // buckets). Nothing is rebuilt at open, so both should take about the same
 // time; compare the two lines. The files are built before the timed loop.
+// The +verify lines add Verify, which reads the whole file.
 func BenchmarkOpen(b *testing.B) {
 	for _, words := range []int{1000, 100000} {
 		ws := make([]string, words)
@@ -633,6 +634,22 @@ func BenchmarkOpen(b *testing.B) {
 			for b.Loop() {
 				m, err := Open(path)
 				if err != nil {
+					b.Fatal(err)
+				}
+				m.Close()
+			}
+		})
+		// For comparison: what reading everything (checksum and finiteness
+		// of the embedding, as Verify does) would add to every open.
+		b.Run(fmt.Sprintf("words=%d+verify", words), func(b *testing.B) {
+			b.ReportAllocs()
+			b.SetBytes(fi.Size())
+			for b.Loop() {
+				m, err := Open(path)
+				if err != nil {
+					b.Fatal(err)
+				}
+				if err := m.Verify(); err != nil {
 					b.Fatal(err)
 				}
 				m.Close()
