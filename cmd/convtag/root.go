@@ -68,7 +68,8 @@ func (a *app) loadModel(path string) (*model.Model, error) {
 		m, err := builtin.Open()
 		return m, withCode(exitUsage, err)
 	}
-	return nil, usageErr("", "open model %s: not yet built", path) // TODO(lead): model.Open
+	m, err := model.Open(path)
+	return m, withCode(exitUsage, err)
 }
 
 // commands lists every sub-command constructor; each command's file adds

@@ -21,6 +21,8 @@ func Bytes() []byte { return data }
 // Open opens the embedded model zero-copy, through the same loader as a
 // memory-mapped file.
 func Open() (*model.Model, error) {
-	// TODO(lead): model.Load(data, Name) once the loader lands.
-	return nil, errors.New("built-in model: not yet built")
+	if len(data) == 0 {
+		return nil, errors.New("built-in model: not yet built (run go generate ./model/builtin)")
+	}
+	return model.Load(data, Name)
 }

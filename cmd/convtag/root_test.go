@@ -1,0 +1,77 @@
+package main
+
+import (
+	"bytes"
+	"strings"
+	"testing"
+)
+
+// runCmd drives the whole program in memory, as a shell would.
+func runCmd(t *testing.T, stdin string, args ...string) (code int, stdout, stderr string) {
+	t.Helper()
+	var out, errb bytes.Buffer
+	code = run(args, strings.NewReader(stdin), &out, &errb)
+	return code, out.String(), errb.String()
+}
+
+func TestVersion(t *testing.T) {
+	code, out, _ := runCmd(t, "", "--version")
+	if code != exitOK || !strings.HasPrefix(out, "convtag ") {
+		t.Fatalf("--version: code %d, out %q", code, out)
+	}
+}
+
+func TestUsageErrors(t *testing.T) {
+	for _, args := range [][]string{
+		{"inspect", "--no-such-flag"},
+		{"tag", "--no-such-flag"},
+	} {
+		code, _, errs := runCmd(t, "", args...)
+		if code != exitUsage {
+			t.Errorf("%v: exit %d, want %d (stderr %q)", args, code, exitUsage, errs)
+		}
+		if !strings.HasPrefix(errs, "convtag: ") || !strings.Contains(errs, "try: ") {
+			t.Errorf("%v: stderr %q lacks the one-line error and a hint", args, errs)
+		}
+	}
+}
+
+// Every command's help carries a worked example.
+func TestHelpHasExamples(t *testing.T) {
+	a := &app{}
+	for _, c := range newRoot(a).Commands() {
+		if c.Name() == "completion" || c.Name() == "help" || strings.Contains(c.Short, "not yet built") {
+			continue
+		}
+		if !strings.Contains(c.Example, "convtag "+c.Name()) {
+			t.Errorf("%s: --help has no worked example", c.Name())
+		}
+	}
+}
+
+func TestCompletion(t *testing.T) {
+	code, out, _ := runCmd(t, "", "completion", "bash")
+	if code != exitOK || !strings.Contains(out, "convtag") {
+		t.Fatalf("completion bash: code %d", code)
+	}
+}
+
+func TestDefaultToTag(t *testing.T) {
+	root := newRoot(&app{})
+	for _, tc := range []struct{ in, want string }{
+		{"", "tag"},
+		{"-m x.safetensors", "tag -m x.safetensors"},
+		{"log.jsonl", "tag log.jsonl"},
+		{"inspect m", "inspect m"},
+		{"--help", "--help"},
+		{"--version", "--version"},
+	} {
+		var args []string
+		if tc.in != "" {
+			args = strings.Fields(tc.in)
+		}
+		if got := strings.Join(defaultToTag(root, args), " "); got != tc.want {
+			t.Errorf("defaultToTag(%q) = %q, want %q", tc.in, got, tc.want)
+		}
+	}
+}
