@@ -186,17 +186,15 @@ func F32ToF16(x float32) uint16 {
 // F16ToF32 widens IEEE 754 binary16 bits to float32 exactly.
 func F16ToF32(h uint16) float32 {
 	sign := uint32(h&0x8000) << 16
-	exp := uint32(h>>10) & 0x1f
-	man := uint32(h & 0x3ff)
-	switch exp {
-	case 0x1f:
-		return math.Float32frombits(sign | 0x7f800000 | man<<13)
-	case 0:
-		v := float32(man) * (1.0 / (1 << 24)) // exact: man < 2^10
-		if sign != 0 {
-			v = -v
-		}
-		return v
+	o := uint32(h&0x7fff) << 13 // exponent and fraction in place, exponent rebias pending
+	switch o & 0x0f800000 {
+	case 0x0f800000: // infinity or NaN: exponent 31 becomes 255
+		o += (255 - 31) << 23
+	case 0: // zero or subnormal: fraction·2^-24, exact in float32
+		f := math.Float32frombits(o+113<<23) - math.Float32frombits(113<<23)
+		return math.Float32frombits(math.Float32bits(f) | sign)
+	default:
+		o += (127 - 15) << 23
 	}
-	return math.Float32frombits(sign | (exp+112)<<23 | man<<13)
+	return math.Float32frombits(o | sign)
 }

@@ -3,6 +3,7 @@ package model
 import (
 	"fmt"
 	"math/rand/v2"
+	"runtime"
 	"sync"
 	"testing"
 )
@@ -21,6 +22,9 @@ import (
 // practice in corpus linguistics), with 5% unknown words spread over the
 // buckets, cycling through 4,096 records so that the hot rows stay cached
 // and the rare ones do not, as on real text.
+//
+// cpu-ns/token is the benchmark thread's CPU time (Linux), which other
+// processes on a shared machine disturb much less than wall time.
 //
 //	go test ./model -run '^$' -bench Forward -benchtime 2s
 
@@ -116,15 +120,54 @@ func BenchmarkForward(b *testing.B) {
 						p.SetDirect(path == "direct")
 						b.SetBytes(int64(n * perToken))
 						b.ReportAllocs()
+						clock := startClocks()
 						i := 0
 						for b.Loop() {
 							p.PredictRows(recs[i%len(recs)])
 							i++
 						}
-						b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N*n), "ns/token")
+						clock.report(b, n)
 					})
 				}
 			}
+		}
+	}
+}
+
+// BenchmarkFoldHot is the folded pass at 60 tokens over only 100 distinct
+// words, so the rows it reads stay in the core's caches: the kernel's
+// arithmetic cost, against which BenchmarkForward's Zipf-distributed rows
+// show what memory adds.
+func BenchmarkFoldHot(b *testing.B) {
+	s := benchSets[128]
+	const n = 60
+	rng := rand.New(rand.NewPCG(5, 5))
+	recs := make([][]int32, benchRecords)
+	for i := range recs {
+		recs[i] = make([]int32, n)
+		for j := range recs[i] {
+			recs[i][j] = int32(1 + rng.IntN(100))
+		}
+	}
+	for _, half := range []bool{false, true} {
+		m := s.folded(b, half)
+		for _, k := range allKernels {
+			name := "f32/" + k.name
+			if half {
+				name = "f16/" + k.name
+			}
+			b.Run(name, func(b *testing.B) {
+				p := m.NewPredictor()
+				p.k = k
+				b.ReportAllocs()
+				clock := startClocks()
+				i := 0
+				for b.Loop() {
+					p.PredictRows(recs[i%len(recs)])
+					i++
+				}
+				clock.report(b, n)
+			})
 		}
 	}
 }
@@ -152,12 +195,31 @@ func BenchmarkPredictText(b *testing.B) {
 	p := m.NewPredictor()
 	b.SetBytes(int64(total / len(texts)))
 	b.ReportAllocs()
+	clock := startClocks()
 	i := 0
 	for b.Loop() {
 		p.Predict(texts[i%len(texts)])
 		i++
 	}
-	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N*20), "ns/token")
+	clock.report(b, 20)
+}
+
+// benchClocks reports ns/token (wall) and cpu-ns/token (thread CPU time).
+type benchClocks struct{ cpu int64 }
+
+func startClocks() benchClocks {
+	runtime.LockOSThread()
+	return benchClocks{cpu: threadCPU()}
+}
+
+func (c benchClocks) report(b *testing.B, tokens int) {
+	end := threadCPU()
+	runtime.UnlockOSThread()
+	n := float64(b.N * tokens)
+	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/n, "ns/token")
+	if c.cpu >= 0 && end >= 0 {
+		b.ReportMetric(float64(end-c.cpu)/n, "cpu-ns/token")
+	}
 }
 
 // BenchmarkFoldModel is the one-off cost of building the tables.

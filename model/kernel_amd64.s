@@ -23,7 +23,7 @@
 //
 // Registers: DI table chunk base, R8 rows, BX n, R9 w, R10 rowBytes,
 // R11 tapBytes, R13 bias, CX position, DX taps left, SI &rows[p+k],
-// R12 tap base, AX row byte offset.
+// R12 tap base, AX tap address.
 // AVX-512: Z0-Z7 sums, Z8-Z15 maxima, Z16-Z23 winners, Z24 position,
 // Z25 ones, Z26-Z29 widened halves, K1 compare, K4-K7 lane masks.
 // AVX2: Y0-Y3 sums, Y4-Y7 maxima, Y8-Y11 winners, Y12 position, Y13 ones,
@@ -47,9 +47,13 @@
 	LEAQ (R8)(CX*4), SI; \
 	MOVQ DI, R12
 
+// AX = address of this tap's chunk in row rows[p+k]. A plain base
+// register, not base+index: indexed memory operands of three-operand
+// vector instructions split into two micro-ops on many Intel cores.
 #define TAP_ROW \
 	MOVL (SI), AX; \
-	IMULQ R10, AX
+	IMULQ R10, AX; \
+	ADDQ R12, AX
 
 #define TAP_NEXT \
 	ADDQ $4, SI; \
@@ -114,14 +118,14 @@ f32z8pos:
 
 f32z8tap:
 	TAP_ROW
-	VADDPS 0(R12)(AX*1), Z0, Z0
-	VADDPS 64(R12)(AX*1), Z1, Z1
-	VADDPS 128(R12)(AX*1), Z2, Z2
-	VADDPS 192(R12)(AX*1), Z3, Z3
-	VADDPS 256(R12)(AX*1), Z4, K4, Z4
-	VADDPS 320(R12)(AX*1), Z5, K5, Z5
-	VADDPS 384(R12)(AX*1), Z6, K6, Z6
-	VADDPS 448(R12)(AX*1), Z7, K7, Z7
+	VADDPS 0(AX), Z0, Z0
+	VADDPS 64(AX), Z1, Z1
+	VADDPS 128(AX), Z2, Z2
+	VADDPS 192(AX), Z3, Z3
+	VADDPS 256(AX), Z4, K4, Z4
+	VADDPS 320(AX), Z5, K5, Z5
+	VADDPS 384(AX), Z6, K6, Z6
+	VADDPS 448(AX), Z7, K7, Z7
 	TAP_NEXT
 	JNZ f32z8tap
 
@@ -216,10 +220,10 @@ f32z4pos:
 
 f32z4tap:
 	TAP_ROW
-	VADDPS 0(R12)(AX*1), Z0, Z0
-	VADDPS 64(R12)(AX*1), Z1, Z1
-	VADDPS 128(R12)(AX*1), Z2, Z2
-	VADDPS 192(R12)(AX*1), Z3, Z3
+	VADDPS 0(AX), Z0, Z0
+	VADDPS 64(AX), Z1, Z1
+	VADDPS 128(AX), Z2, Z2
+	VADDPS 192(AX), Z3, Z3
 	TAP_NEXT
 	JNZ f32z4tap
 
@@ -281,7 +285,7 @@ f32z1pos:
 
 f32z1tap:
 	TAP_ROW
-	VADDPS 0(R12)(AX*1), Z0, Z0
+	VADDPS 0(AX), Z0, Z0
 	TAP_NEXT
 	JNZ f32z1tap
 
@@ -347,21 +351,21 @@ f16z8pos:
 
 f16z8tap:
 	TAP_ROW
-	VCVTPH2PS 0(R12)(AX*1), Z26
+	VCVTPH2PS 0(AX), Z26
 	VADDPS Z26, Z0, Z0
-	VCVTPH2PS 32(R12)(AX*1), Z27
+	VCVTPH2PS 32(AX), Z27
 	VADDPS Z27, Z1, Z1
-	VCVTPH2PS 64(R12)(AX*1), Z28
+	VCVTPH2PS 64(AX), Z28
 	VADDPS Z28, Z2, Z2
-	VCVTPH2PS 96(R12)(AX*1), Z29
+	VCVTPH2PS 96(AX), Z29
 	VADDPS Z29, Z3, Z3
-	VCVTPH2PS.Z 128(R12)(AX*1), K4, Z26
+	VCVTPH2PS.Z 128(AX), K4, Z26
 	VADDPS Z26, Z4, Z4
-	VCVTPH2PS.Z 160(R12)(AX*1), K5, Z27
+	VCVTPH2PS.Z 160(AX), K5, Z27
 	VADDPS Z27, Z5, Z5
-	VCVTPH2PS.Z 192(R12)(AX*1), K6, Z28
+	VCVTPH2PS.Z 192(AX), K6, Z28
 	VADDPS Z28, Z6, Z6
-	VCVTPH2PS.Z 224(R12)(AX*1), K7, Z29
+	VCVTPH2PS.Z 224(AX), K7, Z29
 	VADDPS Z29, Z7, Z7
 	TAP_NEXT
 	JNZ f16z8tap
@@ -457,13 +461,13 @@ f16z4pos:
 
 f16z4tap:
 	TAP_ROW
-	VCVTPH2PS 0(R12)(AX*1), Z26
+	VCVTPH2PS 0(AX), Z26
 	VADDPS Z26, Z0, Z0
-	VCVTPH2PS 32(R12)(AX*1), Z27
+	VCVTPH2PS 32(AX), Z27
 	VADDPS Z27, Z1, Z1
-	VCVTPH2PS 64(R12)(AX*1), Z28
+	VCVTPH2PS 64(AX), Z28
 	VADDPS Z28, Z2, Z2
-	VCVTPH2PS 96(R12)(AX*1), Z29
+	VCVTPH2PS 96(AX), Z29
 	VADDPS Z29, Z3, Z3
 	TAP_NEXT
 	JNZ f16z4tap
@@ -526,7 +530,7 @@ f16z1pos:
 
 f16z1tap:
 	TAP_ROW
-	VCVTPH2PS 0(R12)(AX*1), Z26
+	VCVTPH2PS 0(AX), Z26
 	VADDPS Z26, Z0, Z0
 	TAP_NEXT
 	JNZ f16z1tap
@@ -580,10 +584,10 @@ f32y4pos:
 
 f32y4tap:
 	TAP_ROW
-	VADDPS 0(R12)(AX*1), Y0, Y0
-	VADDPS 32(R12)(AX*1), Y1, Y1
-	VADDPS 64(R12)(AX*1), Y2, Y2
-	VADDPS 96(R12)(AX*1), Y3, Y3
+	VADDPS 0(AX), Y0, Y0
+	VADDPS 32(AX), Y1, Y1
+	VADDPS 64(AX), Y2, Y2
+	VADDPS 96(AX), Y3, Y3
 	TAP_NEXT
 	JNZ f32y4tap
 
@@ -645,7 +649,7 @@ f32y1pos:
 
 f32y1tap:
 	TAP_ROW
-	VADDPS 0(R12)(AX*1), Y0, Y0
+	VADDPS 0(AX), Y0, Y0
 	TAP_NEXT
 	JNZ f32y1tap
 
@@ -698,13 +702,13 @@ f16y4pos:
 
 f16y4tap:
 	TAP_ROW
-	VCVTPH2PS 0(R12)(AX*1), Y14
+	VCVTPH2PS 0(AX), Y14
 	VADDPS Y14, Y0, Y0
-	VCVTPH2PS 16(R12)(AX*1), Y14
+	VCVTPH2PS 16(AX), Y14
 	VADDPS Y14, Y1, Y1
-	VCVTPH2PS 32(R12)(AX*1), Y14
+	VCVTPH2PS 32(AX), Y14
 	VADDPS Y14, Y2, Y2
-	VCVTPH2PS 48(R12)(AX*1), Y14
+	VCVTPH2PS 48(AX), Y14
 	VADDPS Y14, Y3, Y3
 	TAP_NEXT
 	JNZ f16y4tap
@@ -767,7 +771,7 @@ f16y1pos:
 
 f16y1tap:
 	TAP_ROW
-	VCVTPH2PS 0(R12)(AX*1), Y14
+	VCVTPH2PS 0(AX), Y14
 	VADDPS Y14, Y0, Y0
 	TAP_NEXT
 	JNZ f16y1tap

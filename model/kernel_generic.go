@@ -64,8 +64,9 @@ func foldGenericF32(tab []float32, w, f int, rows []int32, bias, mx []float32, w
 		for k := range min(w, n-p) {
 			off := (int(rows[p+k])*w + k) * f
 			t := tab[off : off+f]
+			a := acc[:len(t)]
 			for c, v := range t {
-				acc[c] += v
+				a[c] += v
 			}
 		}
 		if win == nil {
@@ -99,8 +100,9 @@ func foldGenericF16(tab []uint16, w, f int, rows []int32, bias, mx []float32, wi
 		for k := range min(w, n-p) {
 			off := (int(rows[p+k])*w + k) * f
 			t := tab[off : off+f]
+			a := acc[:len(t)]
 			for c, h := range t {
-				acc[c] += F16ToF32(h)
+				a[c] += F16ToF32(h)
 			}
 		}
 		if win == nil {
