@@ -135,7 +135,7 @@ func TestEmbedJSONAndProgress(t *testing.T) {
 		t.Fatal(err)
 	}
 	out := filepath.Join(dir, "v.txt")
-	code, _, errs := runCmd(t, "", "embed", "-o", out, "--text-key", "msg.body", "--dim", "8", "--epochs", "2", in)
+	code, _, errs := runCmd(t, "", "embed", "-o", out, "--text-key", "msg.body", "--dim", "8", "--epochs", "2", "-j", "1", in)
 	if code != exitOK {
 		t.Fatalf("exit %d: %s", code, errs)
 	}
