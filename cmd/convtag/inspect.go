@@ -6,6 +6,7 @@ import (
 
 	"github.com/spf13/cobra"
 
+	"convtag/model"
 	"convtag/model/builtin"
 )
 
@@ -13,6 +14,7 @@ func init() { commands = append(commands, newInspectCmd) }
 
 func newInspectCmd(a *app) *cobra.Command {
 	var asJSON, verify bool
+	var sf sampleFlags
 	c := &cobra.Command{
 		Use:   "inspect [MODEL]",
 		Short: "Show what a model file holds",
@@ -22,10 +24,16 @@ file size, format version, every metadata field and the training summary.
 With no MODEL it describes the built-in model.
 
 --verify recomputes the checksum of the tensor data and exits with status 2
-when it does not match the one stored in the file.`,
+when it does not match the one stored in the file.
+
+--ngrams N --sample FILE runs the texts of FILE (plain lines, or JSON Lines
+with --text-key) through the network and shows, for each label, the N word
+windows that most raise its score, and for each filter its N strongest
+windows.`,
 		Example: `  convtag inspect testdata/fixture.safetensors
   convtag inspect --json my-tagger.safetensors | jq .labels
-  convtag inspect --verify my-tagger.safetensors`,
+  convtag inspect --verify my-tagger.safetensors
+  convtag inspect my-tagger.safetensors --ngrams 10 --sample chat.jsonl --text-key text`,
 		Args: cobra.MaximumNArgs(1),
 		RunE: func(cmd *cobra.Command, args []string) error {
 			path := ""
@@ -37,6 +45,9 @@ when it does not match the one stored in the file.`,
 				return err
 			}
 			defer m.Close()
+			if err := sf.check(); err != nil {
+				return err
+			}
 			in := m.Info()
 			in.File = path
 			if path == "" {
@@ -47,9 +58,21 @@ when it does not match the one stored in the file.`,
 					return withCode(exitUsage, fmt.Errorf("%s: %w", in.File, err))
 				}
 			}
+			var sample *sampleReport
+			if sf.ngrams > 0 {
+				if sample, err = sf.survey(a, m); err != nil {
+					return err
+				}
+			}
 			if asJSON {
 				enc := json.NewEncoder(a.stdout)
 				enc.SetIndent("", "  ")
+				if sample != nil {
+					return enc.Encode(struct {
+						model.Info
+						Sample *sampleReport `json:"sample"`
+					}{in, sample})
+				}
 				return enc.Encode(in)
 			}
 			if err := in.WriteText(a.stdout); err != nil {
@@ -58,10 +81,16 @@ when it does not match the one stored in the file.`,
 			if verify {
 				fmt.Fprintln(a.stdout, "verified:       checksum matches")
 			}
+			if sample != nil {
+				return sample.writeText(a.stdout)
+			}
 			return nil
 		},
 	}
 	c.Flags().BoolVar(&asJSON, "json", false, "print the description as JSON")
 	c.Flags().BoolVar(&verify, "verify", false, "recompute the data checksum; exit 2 on mismatch")
+	c.Flags().IntVar(&sf.ngrams, "ngrams", 0, "show the N windows of --sample that most raise each label's score, and each filter's N strongest")
+	c.Flags().StringArrayVar(&sf.samples, "sample", nil, "texts for --ngrams (plain lines, or JSON Lines with --text-key); repeatable")
+	c.Flags().StringArrayVar(&sf.textKeys, "text-key", nil, "dotted path of the text in a JSON sample record; repeat to join several")
 	return c
 }
