@@ -130,7 +130,12 @@ func (in *Info) WriteText(w io.Writer) error {
 	shown := map[string]bool{MetaFormat: true, MetaFormatVersion: true, MetaLabels: true, MetaConfig: true, MetaTokenizer: true, MetaChecksum: true, MetaCreatedBy: true, MetaTraining: true}
 	for _, k := range slices.Sorted(maps.Keys(in.Metadata)) {
 		if !shown[k] {
-			line("meta "+k, strconv.Quote(in.Metadata[k]))
+			v := in.Metadata[k]
+			if len(v) > 120 { // e.g. the stored baseline: show its size, not its bytes
+				line("meta "+k, fmt.Sprintf("(%d bytes; see --json)", len(v)))
+				continue
+			}
+			line("meta "+k, strconv.Quote(v))
 		}
 	}
 	switch {

@@ -55,7 +55,7 @@ windows.`,
 			}
 			if verify {
 				if err := m.Verify(); err != nil {
-					return withCode(exitUsage, fmt.Errorf("%s: %w", in.File, err))
+					return withCode(exitUsage, err) // the error names the file
 				}
 			}
 			var sample *sampleReport

@@ -102,6 +102,7 @@ runs on the CPU. With no command it runs "convtag tag".
 // run is the whole program: it parses args, runs a command and returns the
 // exit status. Tests call it in memory.
 func run(args []string, stdin io.Reader, stdout, stderr io.Writer) int {
+	model.Version = version
 	a := &app{stdin: stdin, stdout: stdout, stderr: stderr}
 	root := newRoot(a)
 	root.SetArgs(defaultToTag(root, args))
