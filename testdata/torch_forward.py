@@ -3,8 +3,8 @@
 
   torch_forward.py IN.json
 
-IN.json is {"model": PATH, "inputs": [[row, ...], ...]}: a convtag model file
-and texts given as embedding row ids. The model file is a safetensors
+IN.json is a list of jobs {"model": PATH, "inputs": [[row, ...], ...]}: a
+convtag model file and texts given as embedding row ids. The model file is a safetensors
 container, read here by following the format's published specification
 (8-byte little-endian header length, JSON header with dtype, shape and
 data_offsets per tensor, then the data buffer) with the standard library and
@@ -16,8 +16,8 @@ padding, so every token starts a window), ReLU, max over time, the widths'
 features concatenated in order, an optional nn.Linear + ReLU hidden layer,
 and an nn.Linear output layer.
 
-Prints JSON {"logits": [[...], ...], "fold_max_abs_diff": [...]}: one logit
-row per input, and for each width the largest absolute difference between
+Prints a JSON list with one {"logits": [[...], ...], "fold_max_abs_diff":
+[...]} per job: one logit row per input, and for each width the largest absolute difference between
 the file's fold.{i} table and the same table computed here with torch
 (T[r][k][f] = sum_j W[f][j][k] E[r][j]), or no entries if the file has no
 fold tables.
@@ -84,9 +84,7 @@ class Net(nn.Module):
         return self.output(h)
 
 
-def main():
-    with open(sys.argv[1]) as f:
-        job = json.load(f)
+def run(job):
     meta, t = read_safetensors(job["model"])
     cfg = json.loads(meta["config"])
     labels = json.loads(meta["labels"])
@@ -106,7 +104,13 @@ def main():
             ours = torch.einsum("fjk,rj->rkf", conv.weight, emb)
             theirs = torch.from_numpy(t[name].astype(np.float32))
             fold_diff.append(float((ours - theirs).abs().max()))
-    json.dump({"logits": logits, "fold_max_abs_diff": fold_diff}, sys.stdout)
+    return {"logits": logits, "fold_max_abs_diff": fold_diff}
+
+
+def main():
+    with open(sys.argv[1]) as f:
+        jobs = json.load(f)
+    json.dump([run(job) for job in jobs], sys.stdout)
 
 
 if __name__ == "__main__":
