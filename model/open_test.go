@@ -278,6 +278,9 @@ func TestLoadRejects(t *testing.T) {
 		err    error
 		tensor string
 		detail string
+		// atVerify: Load accepts the file (the check reads every word, so it
+		// is Verify's), lookups stay in bounds, and Verify reports it.
+		atVerify bool
 	}{
 		{name: "no format", edit: func(meta map[string]string, ts []Tensor) []Tensor { delete(meta, MetaFormat); return ts }, err: ErrNotModel},
 		{name: "other format", edit: setMeta(MetaFormat, "pt"), err: ErrNotModel},
@@ -342,7 +345,7 @@ func TestLoadRejects(t *testing.T) {
 		{name: "offsets decrease", edit: func(_ map[string]string, ts []Tensor) []Tensor {
 			stSetInt(ts, TensorVocabOffsets, 4, 1)
 			return ts
-		}, err: ErrVocab, detail: "below"},
+		}, atVerify: true, err: ErrVocab, detail: "below"},
 		{name: "offset past the blob", edit: func(_ map[string]string, ts []Tensor) []Tensor {
 			stSetInt(ts, TensorVocabOffsets, 10, 1000)
 			return ts
@@ -350,7 +353,7 @@ func TestLoadRejects(t *testing.T) {
 		{name: "negative offset", edit: func(_ map[string]string, ts []Tensor) []Tensor {
 			stSetInt(ts, TensorVocabOffsets, 3, -5)
 			return ts
-		}, err: ErrVocab},
+		}, atVerify: true, err: ErrVocab},
 		{name: "offsets as I32", edit: func(_ map[string]string, ts []Tensor) []Tensor {
 			o := stTensor(ts, TensorVocabOffsets)
 			o.DType, o.Shape[0] = "I32", o.Shape[0]*2
@@ -359,11 +362,11 @@ func TestLoadRejects(t *testing.T) {
 		{name: "index entry out of range", edit: func(_ map[string]string, ts []Tensor) []Tensor {
 			stSetInt(ts, TensorVocabIndex, 1, 11)
 			return ts
-		}, err: ErrVocab, detail: "outside 0..10"},
+		}, atVerify: true, err: ErrVocab, detail: "outside 0..10"},
 		{name: "negative index entry", edit: func(_ map[string]string, ts []Tensor) []Tensor {
 			stSetInt(ts, TensorVocabIndex, 0, -1)
 			return ts
-		}, err: ErrVocab},
+		}, atVerify: true, err: ErrVocab},
 		{name: "index not a power of two", edit: func(_ map[string]string, ts []Tensor) []Tensor {
 			ix := stTensor(ts, TensorVocabIndex)
 			ix.Shape[0] -= 3
@@ -406,7 +409,17 @@ func TestLoadRejects(t *testing.T) {
 				m = base
 			}
 			raw := stBuild(t, m, tt.edit)
-			_, err := Load(raw, "ferry.safetensors")
+			got, err := Load(raw, "ferry.safetensors")
+			if tt.atVerify {
+				if err != nil {
+					t.Fatalf("Load: %v; want the check left to Verify", err)
+				}
+				for i := range got.Vocab.Len() {
+					got.Vocab.Row(got.Vocab.Word(i)) // must not panic
+				}
+				got.Vocab.Row([]byte("unknown-word"))
+				err = got.Verify()
+			}
 			if !errors.Is(err, tt.err) {
 				t.Fatalf("error %v, want %v", err, tt.err)
 			}

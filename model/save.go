@@ -255,6 +255,14 @@ func (m *Model) Verify() error {
 // checkLarge checks the tensors whose size grows with the vocabulary, which
 // Load does not read: the embedding and the fold tables must be finite.
 func (m *Model) checkLarge() error {
+	if v := m.Vocab; v != nil {
+		if err := checkOffsets(v.offs, len(v.blob)); err != nil {
+			return err
+		}
+		if err := checkIndex(v.index, v.Len()); err != nil {
+			return err
+		}
+	}
 	if i := firstNonFinite32(m.Emb); i >= 0 {
 		return formatErr(TensorEmbedding, ErrNotFinite, "row %d column %d is %v", i/m.Config.Dim, i%m.Config.Dim, m.Emb[i])
 	}

@@ -71,7 +71,18 @@ func (v *Vocab) Len() int { return len(v.offs) - 1 }
 func (v *Vocab) Buckets() int { return v.buckets }
 
 // Word returns known word i (row i+1). The slice aliases the model.
-func (v *Vocab) Word(i int) []byte { return v.blob[v.offs[i]:v.offs[i+1]:v.offs[i+1]] }
+//
+// Opening a file does not read every offset (that would make opening grow
+// with the vocabulary); Verify does. So Word checks its own two offsets and
+// returns nil for a word whose offsets a crafted file got wrong, which
+// then simply never matches a token.
+func (v *Vocab) Word(i int) []byte {
+	a, b := v.offs[i], v.offs[i+1]
+	if a < 0 || b < a || b > int64(len(v.blob)) {
+		return nil
+	}
+	return v.blob[a:b:b]
+}
 
 // Lookup returns the word index of tok, or -1 when tok is unknown.
 func (v *Vocab) Lookup(tok []byte) int {
@@ -82,7 +93,8 @@ func (v *Vocab) Lookup(tok []byte) int {
 		if e == 0 {
 			return -1
 		}
-		if i := int(e - 1); bytes.Equal(v.Word(i), tok) {
+		// Entries are not all checked at open (see Word): skip a bad one.
+		if i := int(e - 1); e > 0 && i < v.Len() && bytes.Equal(v.Word(i), tok) {
 			return i
 		}
 		s = (s + 1) & mask
