@@ -3,6 +3,7 @@ package model
 import (
 	"bytes"
 	"encoding/binary"
+	"slices"
 	"unicode"
 	"unicode/utf8"
 
@@ -176,20 +177,52 @@ func (t *Tokenizer) normalize(ts *Tokens, text []byte) []byte {
 		ts.b = ts.appendNFKC(ts.b[:0], s, n)
 		s = ts.b
 	}
-	if n, _ := caseFold.Span(s, true); n < len(s) {
-		dst := ts.c[:0]
-		if cap(dst) == 0 {
-			dst = make([]byte, 0, len(s)+len(s)/2+8)
-		}
-		ts.c, _, _ = transform.Append(caseFold, dst, s)
+	var changed bool
+	ts.c, changed = appendFold(ts.c[:0], s)
+	if changed {
 		s = ts.c
-		fixCherokee(s)
 		if n := norm.NFKC.QuickSpan(s); n < len(s) {
 			ts.a = ts.appendNFKC(ts.a[:0], s, n) // ts.a is free: s is ts.c
 			s = ts.a
 		}
 	}
 	return s
+}
+
+// appendFold appends the full case folding of s to dst and reports whether
+// it differs from s. Case folding maps each character on its own, so ASCII
+// is folded here by table and only runs of other characters go to x/text,
+// whose folding is slow on ASCII.
+func appendFold(dst, s []byte) ([]byte, bool) {
+	changed := false
+	for i := 0; i < len(s); {
+		if c := s[i]; c < utf8.RuneSelf {
+			if c-'A' < 26 {
+				c += 'a' - 'A'
+				changed = true
+			}
+			dst = append(dst, c)
+			i++
+			continue
+		}
+		j := i + 1
+		for j < len(s) && s[j] >= utf8.RuneSelf {
+			j++
+		}
+		run := s[i:j]
+		if n, _ := caseFold.Span(run, true); n == len(run) {
+			dst = append(dst, run...)
+		} else {
+			// Full folding at most triples the bytes (U+0390 -> U+03B9
+			// U+0308 U+0301); with that room, Append does not allocate.
+			n := len(dst)
+			dst, _, _ = transform.Append(caseFold, slices.Grow(dst, 3*len(run)), run)
+			fixCherokee(dst[n:])
+			changed = true
+		}
+		i = j
+	}
+	return dst, changed
 }
 
 // appendNFKC appends NFKC(src) to dst, given n = norm.NFKC.QuickSpan(src):

@@ -30,6 +30,19 @@ var tokBenchUnicode = []string{
 	"배를 놓쳤어요 ㅠㅠ 다음 배는 언제?",
 }
 
+// Mostly ASCII with an emoji, an accent or a curly apostrophe: common in
+// chat.
+var tokBenchMixed = []string{
+	"is the 10:30 ferry from Värlo to Osk running today? 🙏",
+	"@harbour_desk my bike is still on the car deck 😡",
+	"great crossing, calm sea and the crew were lovely 👍🏽",
+	"can’t find my ticket, booked on https://ferry.example/tickets",
+	"LOST: blue backpack, pier 3, around 4pm — mail mira.tolv@isles.example",
+	"café on board was great, merci!",
+	"why is the evening boat always 20 min late?? 🙄🙄",
+	"Can I bring 2 dogs on the 7:15 to Brennhölm?",
+}
+
 func tokBenchBytes(lines []string) ([][]byte, int) {
 	out := make([][]byte, len(lines))
 	n := 0
@@ -55,7 +68,7 @@ func BenchmarkTokenize(b *testing.B) {
 	for _, set := range []struct {
 		name  string
 		lines []string
-	}{{"ascii", tokBenchASCII}, {"unicode", tokBenchUnicode}} {
+	}{{"ascii", tokBenchASCII}, {"mixed", tokBenchMixed}, {"unicode", tokBenchUnicode}} {
 		lines, avg := tokBenchBytes(set.lines)
 		b.Run(set.name+"/fields", func(b *testing.B) {
 			b.SetBytes(int64(avg))

@@ -6,6 +6,7 @@ import (
 	"math/rand/v2"
 	"os"
 	"reflect"
+	"slices"
 	"strconv"
 	"strings"
 	"sync"
@@ -48,6 +49,18 @@ func tokReference(t *testing.T, path string) *os.File {
 		t.Fatal(err)
 	}
 	return f
+}
+
+// tokSeed is the seed of the random test strings: 1, or env TOK_SEED.
+func tokSeed(t *testing.T) uint64 {
+	if v := os.Getenv("TOK_SEED"); v != "" {
+		n, err := strconv.ParseUint(v, 10, 64)
+		if err != nil {
+			t.Fatalf("TOK_SEED: %v", err)
+		}
+		return n
+	}
+	return 1
 }
 
 // tokRounds is n, or a tenth of it with -short.
@@ -240,25 +253,30 @@ func TestTokenizeNFKCCasefold(t *testing.T) {
 			}
 		}
 	}
-	// Strings: characters from the mapping's interesting parts.
+	// Strings of characters from the mapping and others that compose,
+	// reorder or vanish. Unicode's toNFKC_Casefold maps character by
+	// character, so it can give different results for canonically
+	// equivalent strings ("\u1f98\u0301" and "\u1f9c": the iota subscript
+	// U+0345 folds to a starter). The tokenizer normalises the string
+	// first (NFKC, then folding), keeping such strings together; the
+	// reference here is therefore toNFKC_Casefold(NFKC(s)).
 	var pool []rune
 	for r := range m {
 		pool = append(pool, r)
 	}
-	pool = append(pool, 'a', 'e', 'o', 'A', 'I', ' ', '1', 0x301, 0x308, 0x327, 0x1100, 0x1161, 0x11A8, 0xAC00, 0x3099, 0x304B, 0x200D, 0x2019, 0xE0067)
-	rng := rand.New(rand.NewPCG(1, 2))
+	slices.Sort(pool)
+	pool = append(pool, 'a', 'e', 'o', 'w', 'A', 'I', 'W', ' ', '1', 0x301, 0x308, 0x30A, 0x327, 0x345, 0x1100, 0x1161, 0x11A8,
+		0xAC00, 0x3099, 0x304B, 0x200D, 0x2019, 0xE0067, 0x1F98, 0x1F9C)
+	rng := rand.New(rand.NewPCG(tokSeed(t), 2))
 	for range tokRounds(20000) {
 		in := make([]rune, 1+rng.IntN(8))
 		for j := range in {
 			in[j] = pool[rng.IntN(len(pool))]
-			if in[j] >= 0xD800 && in[j] <= 0xDFFF {
-				in[j] = 'x'
-			}
 		}
-		want := toNFKCCasefold(m, in)
+		want := toNFKCCasefold(m, []rune(norm.NFKC.String(string(in))))
 		if got := string(tk.normalize(&ts, []byte(string(in)))); got != want {
 			if bad++; bad <= 20 {
-				t.Errorf("%+q: normalised to %+q, toNFKC_Casefold gives %+q", string(in), got, want)
+				t.Errorf("%+q: normalised to %+q, toNFKC_Casefold(NFKC(s)) gives %+q", string(in), got, want)
 			}
 		}
 	}
@@ -515,7 +533,7 @@ var tokNonASCII = []string{
 // TestTokenizeHybridDifferential: the hybrid segmenter the tokenizer uses
 // cuts mixed text exactly as uniseg alone, and gives the same tokens.
 func TestTokenizeHybridDifferential(t *testing.T) {
-	rng := rand.New(rand.NewPCG(5, 6))
+	rng := rand.New(rand.NewPCG(tokSeed(t), 6))
 	for range tokRounds(10000) {
 		var sb strings.Builder
 		for n := rng.IntN(10); n >= 0; n-- {
@@ -546,7 +564,7 @@ func TestTokenizeASCIIDifferential(t *testing.T) {
 			inputs = append(inputs, c.in)
 		}
 	}
-	rng := rand.New(rand.NewPCG(3, 4))
+	rng := rand.New(rand.NewPCG(tokSeed(t), 4))
 	for range tokRounds(8000) {
 		inputs = append(inputs, tokRandomASCII(rng))
 	}
