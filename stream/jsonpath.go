@@ -453,6 +453,37 @@ func appendUnescaped(dst, s []byte) []byte {
 	return dst
 }
 
+// appendByteArray appends to dst the bytes that the JSON array starting at
+// b[i] (a valid value) spells as integers from 0 to 255. journalctl -o json
+// writes a field that holds control characters or is not valid UTF-8 that
+// way (systemd's "Journal JSON Format" in docs/JOURNAL_EXPORT_FORMATS.md).
+// For an empty array, or one with any other element, it reports false and
+// returns dst unchanged.
+func appendByteArray(dst, b []byte, i int) ([]byte, bool) {
+	n0 := len(dst)
+	i = skipSpace(b, i+1)
+	for {
+		v, digits := 0, 0
+		for ; i < len(b) && b[i] >= '0' && b[i] <= '9' && digits <= 3; i++ {
+			v = v*10 + int(b[i]-'0')
+			digits++
+		}
+		if digits == 0 || v > 255 {
+			return dst[:n0], false
+		}
+		dst = append(dst, byte(v))
+		i = skipSpace(b, i)
+		switch b[i] {
+		case ',':
+			i = skipSpace(b, i+1)
+		case ']':
+			return dst, true
+		default: // a fraction or an exponent
+			return dst[:n0], false
+		}
+	}
+}
+
 func hex4(h []byte) int {
 	n := 0
 	for _, c := range h[:4] {

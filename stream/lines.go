@@ -29,10 +29,24 @@ func isBlank(line []byte) bool {
 	return true
 }
 
-// looksJSON reports whether a line's first byte after spaces and tabs is
-// '{': the rule --format auto uses.
+// recordSeparator is the ASCII RS byte that JSON text sequences (RFC 7464),
+// such as journalctl -o json-seq writes, put before each record.
+const recordSeparator = 0x1E
+
+// seqPrefix returns the length of a line's leading record separator: 1 when
+// the line starts with one, else 0. The separator stays part of the record's
+// bytes; the JSON object starts after it.
+func seqPrefix(line []byte) int {
+	if len(line) > 0 && line[0] == recordSeparator {
+		return 1
+	}
+	return 0
+}
+
+// looksJSON reports whether a line's first byte after spaces and tabs (and
+// after a leading record separator) is '{': the rule --format auto uses.
 func looksJSON(line []byte) bool {
-	for _, c := range line {
+	for _, c := range line[seqPrefix(line):] {
 		if c != ' ' && c != '\t' {
 			return c == '{'
 		}

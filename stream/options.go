@@ -114,10 +114,14 @@ type Options struct {
 
 	Format InputFormat
 	// TextKeys are dotted paths to the text in a JSON record ("text" when
-	// empty). The strings found are joined with one space. A path's value
-	// that is null or absent adds nothing; a number, boolean, array or
-	// object adds nothing and the record counts as NotString. A record
-	// where no path holds a string is passed through untouched.
+	// empty). The strings found are joined with one space. An array of
+	// integers 0..255 is the bytes of a text, as journalctl -o json writes a
+	// field that is not valid UTF-8. A path's value that is null or absent
+	// adds nothing; a number, boolean, other array or object adds nothing
+	// and the record counts as NotString. A record where no path holds a
+	// text is passed through untouched. A record may start with an ASCII
+	// record separator (0x1E), as in JSON text sequences (journalctl -o
+	// json-seq); it is kept, and the tags go inside the object after it.
 	TextKeys []string
 	// TagKey and ConfidenceKey name the added keys ("tag", "confidence").
 	TagKey, ConfidenceKey string

@@ -277,30 +277,43 @@ func (w *worker) problem(b *block, line, term []byte, err error) {
 }
 
 func (w *worker) jsonRecord(b *block, line, term []byte) {
-	if ok, e := w.scan.validObject(line); !ok {
+	// A JSON text sequence's record separator stays in the record, before
+	// the object.
+	lead := seqPrefix(line)
+	obj := line[lead:]
+	if ok, e := w.scan.validObject(obj); !ok {
 		b.n.malformed++
-		w.problem(b, line, term, fmt.Errorf("%w: %s at column %d", ErrMalformed, e.msg, e.off+1))
+		w.problem(b, line, term, fmt.Errorf("%w: %s at column %d", ErrMalformed, e.msg, lead+e.off+1))
 		return
 	}
 	w.text = w.text[:0]
 	found, badPath, badKind := false, -1, byte(0)
-	start := skipSpace(line, 0)
+	start := skipSpace(obj, 0)
 	for p, path := range w.cfg.paths {
-		s, e, ok, key := findPath(line, start, path, w.key)
+		s, e, ok, key := findPath(obj, start, path, w.key)
 		w.key = key
 		if !ok {
 			continue
 		}
-		switch line[s] {
+		sep := len(w.text)
+		if found {
+			w.text = append(w.text, ' ')
+		}
+		switch obj[s] {
 		case '"':
-			if found {
-				w.text = append(w.text, ' ')
-			}
-			w.text = appendUnescaped(w.text, line[s+1:e-1])
+			w.text = appendUnescaped(w.text, obj[s+1:e-1])
 			found = true
-		case 'n': // null
-		default:
-			badPath, badKind = p, line[s]
+			continue
+		case '[': // the journal's bytes of a text that is not UTF-8
+			var isBytes bool
+			if w.text, isBytes = appendByteArray(w.text, obj, s); isBytes {
+				found = true
+				continue
+			}
+		}
+		w.text = w.text[:sep]
+		if obj[s] != 'n' { // null adds nothing
+			badPath, badKind = p, obj[s]
 		}
 	}
 	if !found {
@@ -318,7 +331,8 @@ func (w *worker) jsonRecord(b *block, line, term []byte) {
 		return
 	}
 	w.setFields(tag)
-	b.out = w.sp.splice(b.out, line, w.fields)
+	b.out = append(b.out, line[:lead]...)
+	b.out = w.sp.splice(b.out, obj, w.fields)
 	b.out = append(b.out, term...)
 	b.n.written++
 }

@@ -58,6 +58,10 @@ before its closing brace (an existing key of the same name gets the new
 value in place). A text line is written as tag, TAB, confidence, TAB, the
 line; or, with --emit jsonl, as {"text": line, "tag": ..., "confidence": ...}.
 A CR before the newline stays in the record and is not part of the text.
+A text key holding an array of byte values (0 to 255), as journalctl -o json
+writes a message that is not valid UTF-8, is tagged on those bytes; a record
+starting with the record separator 0x1E (journalctl -o json-seq) is JSON, and
+the separator is kept.
 
 Every record read gives one record written, unless --keep or --drop leaves
 it out. Records that cannot be tagged pass through unchanged and are counted
