@@ -144,7 +144,9 @@ func (ts *Tokens) addString(tok string) {
 
 // Tokenize replaces the contents of ts by the tokens of text, at most
 // Settings().Limit() of them. Invalid UTF-8 is replaced by U+FFFD. text is
-// not modified or kept. After warm-up, ASCII text allocates nothing.
+// not modified or kept. After warm-up (storage grown to the longest text
+// seen) it allocates nothing. Time is linear in len(text); the whole text
+// is normalised even when the limit is reached early.
 func (t *Tokenizer) Tokenize(ts *Tokens, text []byte) {
 	if isASCII(text) {
 		t.tokenizeASCII(ts, text)
