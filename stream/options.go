@@ -159,6 +159,11 @@ type Options struct {
 	// writer). Compress chooses its compression.
 	Output   string
 	Compress Compress
+	// Append adds to an existing Output file instead of truncating it, for
+	// a filter that a log daemon restarts. Each write to an uncompressed
+	// output ends on a record boundary (a line over MaxLine aside), so a
+	// killed run leaves whole lines.
+	Append bool
 	// Rejects, if set, receives the problem records (malformed JSON,
 	// non-string text, overlong lines) instead of the output, unchanged
 	// and in order.

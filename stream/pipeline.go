@@ -496,7 +496,7 @@ func Run(ctx context.Context, opts Options, inputs []string, stdin io.Reader, st
 	if len(first.labels) < 2 {
 		return stats, errors.New("stream: tagger has no labels")
 	}
-	out, err := newWriter(opts.Output, opts.Compress, stdout)
+	out, err := newWriter(opts.Output, opts.Compress, opts.Append, stdout)
 	if err != nil {
 		return stats, err
 	}

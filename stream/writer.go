@@ -34,7 +34,9 @@ type writer struct {
 
 const writeBuffer = 256 << 10
 
-func newWriter(path string, comp Compress, stdout io.Writer) (*writer, error) {
+// newWriter writes to the file path (truncated, or appended to when
+// appendTo is set) or, when path is "" or "-", to stdout.
+func newWriter(path string, comp Compress, appendTo bool, stdout io.Writer) (*writer, error) {
 	w := &writer{comp: comp, dst: stdout}
 	if path != "" && path != "-" {
 		w.path = path
@@ -49,7 +51,11 @@ func newWriter(path string, comp Compress, stdout io.Writer) (*writer, error) {
 			w.comp = CompressZstd
 		}
 	}
-	if err := w.open(os.O_TRUNC); err != nil {
+	mode := os.O_TRUNC
+	if appendTo {
+		mode = os.O_APPEND
+	}
+	if err := w.open(mode); err != nil {
 		return nil, err
 	}
 	return w, nil
@@ -106,7 +112,16 @@ func (w *writer) write(p []byte) error {
 	if w.zw != nil {
 		_, err = w.zw.Write(p)
 	} else {
-		_, err = w.sink.Write(p)
+		// p ends on a record boundary (it is a block's output): emptying
+		// the buffer first when p does not fit keeps every write to the
+		// destination on record boundaries too, so a process killed
+		// mid-run leaves no partial line for the next one to append to.
+		if len(p) > w.sink.Available() && w.sink.Buffered() > 0 {
+			err = w.sink.Flush()
+		}
+		if err == nil {
+			_, err = w.sink.Write(p)
+		}
 	}
 	if err != nil {
 		return w.fail(err)

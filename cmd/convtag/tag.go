@@ -202,6 +202,7 @@ the old model kept) and reopens the --output file for appending.
 	f.StringSliceVar(&drop, "drop", nil, "leave out records with one of these tags (TAG[,TAG])")
 	f.StringVar(&emit, "emit", "tsv", "how text lines are written: tsv (tag TAB confidence TAB line) or jsonl")
 	f.StringVarP(&output, "output", "o", "", "write to FILE (compressed by its suffix .gz or .zst)")
+	f.BoolVar(&o.Append, "append", false, "with --output: add to FILE instead of replacing it (for a filter a log daemon restarts)")
 	f.StringVar(&compress, "compress", "auto", "output compression: auto (by --output suffix), none, gzip or zstd")
 	f.IntVarP(&o.Jobs, "jobs", "j", 0, "workers (default: all cores)")
 	f.IntVar(&o.BlockSize, "batch", 0, "bytes of input a worker takes at a time (default 1048576)")
