@@ -272,10 +272,13 @@ func (c *cutter) add(cur *block, data []byte, long bool) (*block, bool) {
 			// One line past MaxLine: pass it through in pieces.
 			cur.raw, cur.rawFirst = true, true
 			next := c.take()
-			if next == nil || !c.send(cur) {
+			if next == nil {
 				return nil, false
 			}
-			next.file = cur.file
+			next.file = cur.file // before send: cur then belongs to a worker
+			if !c.send(cur) {
+				return nil, false
+			}
 			cur, long = next, true
 		}
 	}

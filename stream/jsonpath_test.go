@@ -82,6 +82,16 @@ func checkPath(t *testing.T, b []byte, p string) {
 		}
 	}
 	ref := jsoniter.Get(b, keys...)
+	if ref.LastError() != nil {
+		// A decimal segment names a key when the value is an object.
+		str := make([]any, len(segs))
+		for i, s := range segs {
+			str[i] = s
+		}
+		if r := jsoniter.Get(b, str...); r.LastError() == nil {
+			ref = r
+		}
+	}
 	start, end, ok, _ := findPath(b, skipSpace(b, 0), segs, nil)
 	if ok != (ref.LastError() == nil) {
 		// json-iterator compares raw key bytes, so an escaped key is the

@@ -400,3 +400,68 @@ func TestTagUnderGNUParallel(t *testing.T) {
 		t.Fatalf("parallel: %d bytes, one process %d", len(got), len(want))
 	}
 }
+
+// BenchmarkTagVsJq runs `jq -c .` (Debian's jq, the baseline) and
+// `convtag tag -j 2` over the same 200,000 invented JSON records in each
+// iteration, with a d=300, 3×100-filter folded model over 5,000 words, and
+// reports both rates and their ratio (the target is 2× or more).
+func BenchmarkTagVsJq(b *testing.B) {
+	jq, err := exec.LookPath("jq")
+	if err != nil {
+		if os.Getenv("CI") == "true" {
+			b.Fatalf("jq is the baseline: %v", err)
+		}
+		b.Skip("jq not installed")
+	}
+	bin := binary(b)
+	dir := b.TempDir()
+	words := make([]string, 5000)
+	for i := range words {
+		words[i] = fmt.Sprintf("w%dx", i)
+	}
+	cfg := model.Config{Dim: 300, Widths: []int{3, 4, 5}, Filters: 100, Buckets: 1000}
+	m, err := model.New(cfg, model.TokenizerSettings{}, []string{"crossing", "weather", "other"}, words, 1)
+	if err != nil {
+		b.Fatal(err)
+	}
+	model.FoldModel(m, false)
+	mp := filepath.Join(dir, "d300.safetensors")
+	if err := m.Save(mp); err != nil {
+		b.Fatal(err)
+	}
+	const n = 200_000
+	var in bytes.Buffer
+	for i := range n {
+		fmt.Fprintf(&in, `{"id":%d,"user":"u%d","text":"`, i, i%50)
+		for k := range 5 + i%36 {
+			if k > 0 {
+				in.WriteByte(' ')
+			}
+			in.WriteString(words[(i*31+k*k*7)%(1+i%len(words))])
+		}
+		in.WriteString("\"}\n")
+	}
+	inPath := filepath.Join(dir, "in.jsonl")
+	os.WriteFile(inPath, in.Bytes(), 0o644)
+	timeRun := func(name string, args ...string) time.Duration {
+		c := exec.Command(name, args...)
+		f, _ := os.Open(inPath)
+		defer f.Close()
+		c.Stdin = f
+		t0 := time.Now()
+		if out, err := c.Output(); err != nil || bytes.Count(out, []byte("\n")) != n {
+			b.Fatalf("%s: %v", name, err)
+		}
+		return time.Since(t0)
+	}
+	var tj, tc time.Duration
+	b.SetBytes(int64(in.Len()))
+	for b.Loop() {
+		tj += timeRun(jq, "-c", ".")
+		tc += timeRun(bin, "tag", "-m", mp, "-j", "2")
+	}
+	runs := float64(b.N)
+	b.ReportMetric(n*runs/tj.Seconds(), "jq_rec/s")
+	b.ReportMetric(n*runs/tc.Seconds(), "convtag_rec/s")
+	b.ReportMetric(tj.Seconds()/tc.Seconds(), "ratio")
+}
