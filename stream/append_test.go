@@ -61,8 +61,16 @@ func TestRunAppend(t *testing.T) {
 	for _, c := range []struct {
 		append bool
 		want   string
-	}{{false, want}, {true, "kept line\n" + want}} {
-		if err := os.WriteFile(path, []byte("kept line\n"), 0o644); err != nil {
+		old    string
+	}{
+		{false, want, "kept line\n"},
+		{true, "kept line\n" + want, "kept line\n"},
+		{true, want, ""},
+		// A record cut by a killed run gets its line ended; nothing of it is
+		// lost and the new records stay whole.
+		{true, "{\"id\":1,\"te\n" + want, "{\"id\":1,\"te"},
+	} {
+		if err := os.WriteFile(path, []byte(c.old), 0o644); err != nil {
 			t.Fatal(err)
 		}
 		if _, _, errs := runString(t, Options{Output: path, Append: c.append}, in); len(errs) > 0 {

@@ -68,6 +68,14 @@ func (w *writer) open(mode int) error {
 			return fmt.Errorf("open output: %w", err)
 		}
 		w.file, w.dst = f, f
+		if mode == os.O_APPEND && w.comp == CompressNone && !endsWithNewline(w.path) {
+			// A run killed mid-write left part of a record: end that line
+			// so the records appended now start on lines of their own.
+			if _, err := f.Write([]byte{'\n'}); err != nil {
+				f.Close()
+				return fmt.Errorf("open output: %w", err)
+			}
+		}
 	}
 	if w.sink == nil {
 		w.sink = bufio.NewWriterSize(w.dst, writeBuffer)
@@ -85,6 +93,25 @@ func (w *writer) open(mode int) error {
 		w.zw = zw
 	}
 	return nil
+}
+
+// endsWithNewline reports whether the file at path is empty, ends with a
+// newline, or cannot be read (then nothing is added to it).
+func endsWithNewline(path string) bool {
+	f, err := os.Open(path)
+	if err != nil {
+		return true
+	}
+	defer f.Close()
+	st, err := f.Stat()
+	if err != nil || st.Size() == 0 || !st.Mode().IsRegular() {
+		return true
+	}
+	var last [1]byte
+	if _, err := f.ReadAt(last[:], st.Size()-1); err != nil {
+		return true
+	}
+	return last[0] == '\n'
 }
 
 func (w *writer) fail(err error) error {
