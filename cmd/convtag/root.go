@@ -4,6 +4,8 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"os"
+	"runtime/pprof"
 	"slices"
 	"strings"
 
@@ -103,6 +105,11 @@ runs on the CPU. With no command it runs "convtag tag".
 // exit status. Tests call it in memory.
 func run(args []string, stdin io.Reader, stdout, stderr io.Writer) int {
 	model.Version = version
+	if path := os.Getenv("CONVTAG_CPUPROFILE"); path != "" { // for developers; see DEVELOPERS.md
+		if stop, err := startCPUProfile(path); err == nil {
+			defer stop()
+		}
+	}
 	a := &app{stdin: stdin, stdout: stdout, stderr: stderr}
 	root := newRoot(a)
 	root.SetArgs(defaultToTag(root, args))
@@ -158,4 +165,17 @@ func notYet(name string) func(*cobra.Command, []string) error {
 	return func(*cobra.Command, []string) error {
 		return withCode(exitFailure, fmt.Errorf("%s: not yet built", name))
 	}
+}
+
+// startCPUProfile writes a CPU profile of the whole run to path.
+func startCPUProfile(path string) (stop func(), err error) {
+	f, err := os.Create(path)
+	if err != nil {
+		return nil, err
+	}
+	if err := pprof.StartCPUProfile(f); err != nil {
+		f.Close()
+		return nil, err
+	}
+	return func() { pprof.StopCPUProfile(); f.Close() }, nil
 }
