@@ -23,7 +23,8 @@
 // actually read, never with the header's claims: a crafted count cannot
 // cause a large allocation, and Dim is capped at MaxDim.
 //
-// The package does no training and knows nothing of models or records: it
-// is the file format only. Package model/sgns learns vectors; training
+// Beyond the formats it only answers nearest-neighbour queries by cosine
+// similarity (Nearest). It does no training and knows nothing of models or
+// records. Package model/sgns learns vectors; training
 // reads them through this package.
 package vectors
