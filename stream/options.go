@@ -133,6 +133,11 @@ type Options struct {
 	ScoresKey string
 	Top       int
 	TopKey    string
+	// Why adds, under WhyKey ("why"), the evidence for each tag that the
+	// Scorer gives when it is an Explainer (an empty array otherwise).
+	// JSON output only, like Scores.
+	Why    bool
+	WhyKey string
 	// MinConfidence: a record whose best probability is below it gets
 	// UnsureTag ("unsure") as its tag; its confidence stays the best
 	// probability.

@@ -22,7 +22,7 @@ type config struct {
 	o                          Options
 	paths                      [][]string
 	tagKey, confKey            field // names and encoded keys; values unused
-	scoresKey, topKey          field
+	scoresKey, topKey, whyKey  field
 	unsure                     string
 	jobs, blockSize, maxLine   int
 	pause, maxWait             time.Duration
@@ -57,12 +57,16 @@ func newConfig(o Options) (*config, error) {
 	c.confKey = mk(o.ConfidenceKey, "confidence")
 	c.scoresKey = mk(o.ScoresKey, "scores")
 	c.topKey = mk(o.TopKey, "top")
+	c.whyKey = mk(o.WhyKey, "why")
 	used := []string{c.tagKey.name, c.confKey.name}
 	if o.Scores {
 		used = append(used, c.scoresKey.name)
 	}
 	if o.Top > 0 {
 		used = append(used, c.topKey.name)
+	}
+	if o.Why {
+		used = append(used, c.whyKey.name)
 	}
 	for i, k := range used {
 		if slices.Contains(used[:i], k) {
@@ -167,6 +171,9 @@ func newWorker(c *config) *worker {
 	}
 	if c.o.Top > 0 {
 		w.fields = append(w.fields, c.topKey)
+	}
+	if c.o.Why {
+		w.fields = append(w.fields, c.whyKey)
 	}
 	return w
 }
@@ -436,6 +443,14 @@ func (w *worker) setFields(tag int) {
 			v = append(v, '}')
 		}
 		w.fields[i].val = append(v, ']')
+		i++
+	}
+	if w.cfg.o.Why {
+		if ex, ok := w.sc.(Explainer); ok {
+			w.fields[i].val = ex.AppendWhy(w.fields[i].val[:0])
+		} else {
+			w.fields[i].val = append(w.fields[i].val[:0], "[]"...)
+		}
 	}
 }
 

@@ -16,3 +16,12 @@ type Scorer interface {
 	// by the Scorer and valid until the next call.
 	Score(text []byte) []float32
 }
+
+// Explainer is a Scorer that can also say why: after Score, AppendWhy
+// appends to dst the last text's evidence as one JSON value. The pipeline
+// asks for it only when Options.Why is set, so scoring costs nothing extra
+// otherwise.
+type Explainer interface {
+	Scorer
+	AppendWhy(dst []byte) []byte
+}

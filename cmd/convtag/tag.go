@@ -23,6 +23,15 @@ import (
 
 func init() { commands = append(commands, newTagCmd) }
 
+// newTagger adapts m to the pipeline: with why > 0 its scorers also
+// explain each tag (see whyTagger), otherwise they do no such work.
+func newTagger(m *model.Model, why int) stream.Tagger {
+	if why > 0 {
+		return whyTagger{m: m, n: why}
+	}
+	return modelTagger{m}
+}
+
 // modelTagger adapts a *model.Model to stream.Tagger.
 type modelTagger struct{ m *model.Model }
 
@@ -44,6 +53,7 @@ func newTagCmd(a *app) *cobra.Command {
 		textKeys, keep, drop                                         []string
 		o                                                            stream.Options
 		strict, showStats                                            bool
+		why                                                          int
 	)
 	c := &cobra.Command{
 		Use:   "tag [flags] [FILE...]",
@@ -93,7 +103,7 @@ the old model kept) and reopens the --output file for appending.
 			if o.MinConfidence < 0 || o.MinConfidence > 1 {
 				return usageErr("convtag tag --min-confidence 0.7", "--min-confidence %v: want a probability from 0 to 1", o.MinConfidence)
 			}
-			if o.Top < 0 || o.Jobs < 0 || o.BlockSize < 0 {
+			if why < 0 || o.Top < 0 || o.Jobs < 0 || o.BlockSize < 0 {
 				return usageErr("convtag tag --help", "--top, --jobs and --batch must not be negative")
 			}
 			switch progress {
@@ -115,7 +125,8 @@ the old model kept) and reopens the --output file for appending.
 					return usageErr("convtag inspect "+modelPath, "no tag %q in the model (its tags: %s)", t, strings.Join(tags, ", "))
 				}
 			}
-			o.Tagger = modelTagger{m}
+			o.Tagger = newTagger(m, why)
+			o.Why = why > 0
 
 			if rejects != "" {
 				f, err := os.Create(rejects)
@@ -153,7 +164,7 @@ the old model kept) and reopens the --output file for appending.
 			defer signal.Stop(hup)
 			hupDone := make(chan struct{})
 			defer close(hupDone)
-			go reloadOnHangup(a, modelPath, o.Switch, hup, hupDone)
+			go reloadOnHangup(a, modelPath, why, o.Switch, hup, hupDone)
 
 			if bar := newProgress(a, progress, args); bar != nil {
 				var last time.Time
@@ -196,6 +207,7 @@ the old model kept) and reopens the --output file for appending.
 	f.StringVar(&o.ConfidenceKey, "confidence-key", "confidence", "key of the added confidence (rounded to 4 decimals)")
 	f.BoolVar(&o.Scores, "scores", false, `add every label's probability as an object under "scores" (JSON output)`)
 	f.IntVar(&o.Top, "top", 0, `add the N best labels, best first, as an array under "top" (JSON output)`)
+	f.IntVar(&why, "why", 0, `add the N word windows that weighed most for the tag, as an array under "why" (JSON output)`)
 	f.Float64Var(&o.MinConfidence, "min-confidence", 0, "below this probability the record gets the --unsure-tag")
 	f.StringVar(&o.UnsureTag, "unsure-tag", "unsure", "tag for records below --min-confidence")
 	f.StringSliceVar(&keep, "keep", nil, "write only records with one of these tags (TAG[,TAG])")
@@ -226,7 +238,7 @@ func splitTags(list []string) []string {
 // reloadOnHangup reopens the model file on each SIGHUP and hands it to the
 // running pipeline; a file that does not load is reported and the current
 // model kept. Either way the output file is reopened.
-func reloadOnHangup(a *app, path string, sw *stream.Switch, hup <-chan os.Signal, done <-chan struct{}) {
+func reloadOnHangup(a *app, path string, why int, sw *stream.Switch, hup <-chan os.Signal, done <-chan struct{}) {
 	for {
 		select {
 		case <-done:
@@ -243,7 +255,7 @@ func reloadOnHangup(a *app, path string, sw *stream.Switch, hup <-chan os.Signal
 			sw.Set(nil)
 			continue
 		}
-		sw.Set(modelTagger{m})
+		sw.Set(newTagger(m, why))
 		fmt.Fprintf(a.stderr, "convtag: reloaded %s\n", name)
 	}
 }
