@@ -94,13 +94,21 @@ func (s *benchSet) recordsOf(m *Model, n int) [][]int32 {
 	return recs
 }
 
+// noPrefetch is where a benchmark turns the fold kernels' prefetching
+// off; nil where the kernels do not prefetch.
+var noPrefetch func() (restore func())
+
 func BenchmarkForward(b *testing.B) {
 	for _, d := range []int{128, 300} {
 		s := benchSets[d]
 		for _, n := range []int{20, 60} {
 			for _, path := range []string{"direct", "f32", "f16"} {
-				for _, k := range allKernels {
-					b.Run(fmt.Sprintf("d=%d/n=%d/%s/%s", d, n, path, k.name), func(b *testing.B) {
+				for _, variant := range benchVariants(path) {
+					k := variant.k
+					b.Run(fmt.Sprintf("d=%d/n=%d/%s/%s", d, n, path, variant.name), func(b *testing.B) {
+						if variant.nopf {
+							defer noPrefetch()()
+						}
 						var m *Model
 						var perToken int
 						switch path {
@@ -132,6 +140,25 @@ func BenchmarkForward(b *testing.B) {
 			}
 		}
 	}
+}
+
+type benchVariant struct {
+	name string
+	k    *kernels
+	nopf bool
+}
+
+// benchVariants is every kernel implementation, and for the folded paths
+// the fastest one once more without prefetching.
+func benchVariants(path string) []benchVariant {
+	var vs []benchVariant
+	for _, k := range allKernels {
+		vs = append(vs, benchVariant{name: k.name, k: k})
+	}
+	if path != "direct" && noPrefetch != nil && activeKernels != &genericKernels {
+		vs = append(vs, benchVariant{name: activeKernels.name + "-noprefetch", k: activeKernels, nopf: true})
+	}
+	return vs
 }
 
 // BenchmarkFoldHot is the folded pass at 60 tokens over only 100 distinct

@@ -5,7 +5,7 @@
 // Folded convolution kernels. Each processes one chunk of columns (1, 4 or
 // 8 vectors of filters) of one width's table for a whole text:
 //
-//	func foldT_ISAxV(tab *T, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
+//	func foldT_ISAxV(tab *T, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64, pf int)
 //
 // tab, bias, mx and win point at the chunk's first column; rowBytes is the
 // byte size of one row's w taps, tapBytes of one tap. For each position p
@@ -15,6 +15,13 @@
 // With win non-nil the first position reaching each maximum is kept too
 // (strict greater-than, start -1); with win nil a plain VMAXPS does, which
 // returns its second source on equality exactly like the strict compare.
+//
+// With pf > 0, each position first prefetches the whole row (all w taps)
+// of the token pf positions beyond its window, rows[p+w-1+pf], into L1:
+// the rows of a text are random, so no hardware prefetcher can guess them,
+// and without this the window's loads wait on memory within the reorder
+// window only. Callers pass pf only for the first chunk of a table, where
+// tab is the row start, so the lines fetched are exactly the row's.
 //
 // The x8 kernels (AVX-512 only) cover 5..8 vectors in one pass: vectors
 // 0-3 are whole, vectors 4-7 use the lane masks in masks (16 bits each,
@@ -83,8 +90,8 @@
 	SHRQ $16, AX; \
 	KMOVW AX, K7
 
-// func foldF32AVX512x8(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
-TEXT ·foldF32AVX512x8(SB), NOSPLIT, $0-80
+// func foldF32AVX512x8(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64, pf int)
+TEXT ·foldF32AVX512x8(SB), NOSPLIT, $0-88
 	FOLD_ARGS
 	Z_MASKS
 	VPXORD Z8, Z8, Z8
@@ -105,7 +112,55 @@ TEXT ·foldF32AVX512x8(SB), NOSPLIT, $0-80
 	VPTERNLOGD $0xff, Z23, Z23, Z23
 	Z_START
 
+	// Prefetch the rows of the first pf+w-1 tokens, which the loop's
+	// look-ahead does not reach.
+	MOVQ pf+80(FP), DX
+	TESTQ DX, DX
+	JEQ f32z8pos
+	ADDQ R9, DX
+	DECQ DX
+	CMPQ DX, BX
+	CMOVQGT BX, DX
+	XORQ SI, SI
+
+f32z8prorow:
+	MOVL (R8)(SI*4), AX
+	IMULQ R10, AX
+	ADDQ DI, AX
+	MOVQ R10, R12
+
+f32z8proline:
+	PREFETCHT0 (AX)
+	PREFETCHT0 64(AX)
+	ADDQ $128, AX
+	SUBQ $128, R12
+	JG f32z8proline
+	INCQ SI
+	CMPQ SI, DX
+	JLT f32z8prorow
+
 f32z8pos:
+	MOVQ pf+80(FP), AX
+	TESTQ AX, AX
+	JEQ f32z8pfdone
+	ADDQ CX, AX
+	ADDQ R9, AX
+	DECQ AX
+	CMPQ AX, BX
+	JGE f32z8pfdone
+	MOVL (R8)(AX*4), AX
+	IMULQ R10, AX
+	ADDQ DI, AX
+	MOVQ R10, DX
+
+f32z8pf:
+	PREFETCHT0 (AX)
+	PREFETCHT0 64(AX)
+	ADDQ $128, AX
+	SUBQ $128, DX
+	JG f32z8pf
+
+f32z8pfdone:
 	POS_SETUP
 	VMOVUPS 0(R13), Z0
 	VMOVUPS 64(R13), Z1
@@ -198,8 +253,8 @@ f32z8done:
 	VZEROUPPER
 	RET
 
-// func foldF32AVX512x4(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
-TEXT ·foldF32AVX512x4(SB), NOSPLIT, $0-80
+// func foldF32AVX512x4(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64, pf int)
+TEXT ·foldF32AVX512x4(SB), NOSPLIT, $0-88
 	FOLD_ARGS
 	VPXORD Z8, Z8, Z8
 	VPXORD Z9, Z9, Z9
@@ -211,7 +266,55 @@ TEXT ·foldF32AVX512x4(SB), NOSPLIT, $0-80
 	VPTERNLOGD $0xff, Z19, Z19, Z19
 	Z_START
 
+	// Prefetch the rows of the first pf+w-1 tokens, which the loop's
+	// look-ahead does not reach.
+	MOVQ pf+80(FP), DX
+	TESTQ DX, DX
+	JEQ f32z4pos
+	ADDQ R9, DX
+	DECQ DX
+	CMPQ DX, BX
+	CMOVQGT BX, DX
+	XORQ SI, SI
+
+f32z4prorow:
+	MOVL (R8)(SI*4), AX
+	IMULQ R10, AX
+	ADDQ DI, AX
+	MOVQ R10, R12
+
+f32z4proline:
+	PREFETCHT0 (AX)
+	PREFETCHT0 64(AX)
+	ADDQ $128, AX
+	SUBQ $128, R12
+	JG f32z4proline
+	INCQ SI
+	CMPQ SI, DX
+	JLT f32z4prorow
+
 f32z4pos:
+	MOVQ pf+80(FP), AX
+	TESTQ AX, AX
+	JEQ f32z4pfdone
+	ADDQ CX, AX
+	ADDQ R9, AX
+	DECQ AX
+	CMPQ AX, BX
+	JGE f32z4pfdone
+	MOVL (R8)(AX*4), AX
+	IMULQ R10, AX
+	ADDQ DI, AX
+	MOVQ R10, DX
+
+f32z4pf:
+	PREFETCHT0 (AX)
+	PREFETCHT0 64(AX)
+	ADDQ $128, AX
+	SUBQ $128, DX
+	JG f32z4pf
+
+f32z4pfdone:
 	POS_SETUP
 	VMOVUPS 0(R13), Z0
 	VMOVUPS 64(R13), Z1
@@ -272,14 +375,62 @@ f32z4done:
 	VZEROUPPER
 	RET
 
-// func foldF32AVX512x1(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
-TEXT ·foldF32AVX512x1(SB), NOSPLIT, $0-80
+// func foldF32AVX512x1(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64, pf int)
+TEXT ·foldF32AVX512x1(SB), NOSPLIT, $0-88
 	FOLD_ARGS
 	VPXORD Z8, Z8, Z8
 	VPTERNLOGD $0xff, Z16, Z16, Z16
 	Z_START
 
+	// Prefetch the rows of the first pf+w-1 tokens, which the loop's
+	// look-ahead does not reach.
+	MOVQ pf+80(FP), DX
+	TESTQ DX, DX
+	JEQ f32z1pos
+	ADDQ R9, DX
+	DECQ DX
+	CMPQ DX, BX
+	CMOVQGT BX, DX
+	XORQ SI, SI
+
+f32z1prorow:
+	MOVL (R8)(SI*4), AX
+	IMULQ R10, AX
+	ADDQ DI, AX
+	MOVQ R10, R12
+
+f32z1proline:
+	PREFETCHT0 (AX)
+	PREFETCHT0 64(AX)
+	ADDQ $128, AX
+	SUBQ $128, R12
+	JG f32z1proline
+	INCQ SI
+	CMPQ SI, DX
+	JLT f32z1prorow
+
 f32z1pos:
+	MOVQ pf+80(FP), AX
+	TESTQ AX, AX
+	JEQ f32z1pfdone
+	ADDQ CX, AX
+	ADDQ R9, AX
+	DECQ AX
+	CMPQ AX, BX
+	JGE f32z1pfdone
+	MOVL (R8)(AX*4), AX
+	IMULQ R10, AX
+	ADDQ DI, AX
+	MOVQ R10, DX
+
+f32z1pf:
+	PREFETCHT0 (AX)
+	PREFETCHT0 64(AX)
+	ADDQ $128, AX
+	SUBQ $128, DX
+	JG f32z1pf
+
+f32z1pfdone:
 	POS_SETUP
 	VMOVUPS 0(R13), Z0
 
@@ -316,8 +467,8 @@ f32z1done:
 	VZEROUPPER
 	RET
 
-// func foldF16AVX512x8(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
-TEXT ·foldF16AVX512x8(SB), NOSPLIT, $0-80
+// func foldF16AVX512x8(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64, pf int)
+TEXT ·foldF16AVX512x8(SB), NOSPLIT, $0-88
 	FOLD_ARGS
 	Z_MASKS
 	VPXORD Z8, Z8, Z8
@@ -338,7 +489,55 @@ TEXT ·foldF16AVX512x8(SB), NOSPLIT, $0-80
 	VPTERNLOGD $0xff, Z23, Z23, Z23
 	Z_START
 
+	// Prefetch the rows of the first pf+w-1 tokens, which the loop's
+	// look-ahead does not reach.
+	MOVQ pf+80(FP), DX
+	TESTQ DX, DX
+	JEQ f16z8pos
+	ADDQ R9, DX
+	DECQ DX
+	CMPQ DX, BX
+	CMOVQGT BX, DX
+	XORQ SI, SI
+
+f16z8prorow:
+	MOVL (R8)(SI*4), AX
+	IMULQ R10, AX
+	ADDQ DI, AX
+	MOVQ R10, R12
+
+f16z8proline:
+	PREFETCHT0 (AX)
+	PREFETCHT0 64(AX)
+	ADDQ $128, AX
+	SUBQ $128, R12
+	JG f16z8proline
+	INCQ SI
+	CMPQ SI, DX
+	JLT f16z8prorow
+
 f16z8pos:
+	MOVQ pf+80(FP), AX
+	TESTQ AX, AX
+	JEQ f16z8pfdone
+	ADDQ CX, AX
+	ADDQ R9, AX
+	DECQ AX
+	CMPQ AX, BX
+	JGE f16z8pfdone
+	MOVL (R8)(AX*4), AX
+	IMULQ R10, AX
+	ADDQ DI, AX
+	MOVQ R10, DX
+
+f16z8pf:
+	PREFETCHT0 (AX)
+	PREFETCHT0 64(AX)
+	ADDQ $128, AX
+	SUBQ $128, DX
+	JG f16z8pf
+
+f16z8pfdone:
 	POS_SETUP
 	VMOVUPS 0(R13), Z0
 	VMOVUPS 64(R13), Z1
@@ -439,8 +638,8 @@ f16z8done:
 	VZEROUPPER
 	RET
 
-// func foldF16AVX512x4(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
-TEXT ·foldF16AVX512x4(SB), NOSPLIT, $0-80
+// func foldF16AVX512x4(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64, pf int)
+TEXT ·foldF16AVX512x4(SB), NOSPLIT, $0-88
 	FOLD_ARGS
 	VPXORD Z8, Z8, Z8
 	VPXORD Z9, Z9, Z9
@@ -452,7 +651,55 @@ TEXT ·foldF16AVX512x4(SB), NOSPLIT, $0-80
 	VPTERNLOGD $0xff, Z19, Z19, Z19
 	Z_START
 
+	// Prefetch the rows of the first pf+w-1 tokens, which the loop's
+	// look-ahead does not reach.
+	MOVQ pf+80(FP), DX
+	TESTQ DX, DX
+	JEQ f16z4pos
+	ADDQ R9, DX
+	DECQ DX
+	CMPQ DX, BX
+	CMOVQGT BX, DX
+	XORQ SI, SI
+
+f16z4prorow:
+	MOVL (R8)(SI*4), AX
+	IMULQ R10, AX
+	ADDQ DI, AX
+	MOVQ R10, R12
+
+f16z4proline:
+	PREFETCHT0 (AX)
+	PREFETCHT0 64(AX)
+	ADDQ $128, AX
+	SUBQ $128, R12
+	JG f16z4proline
+	INCQ SI
+	CMPQ SI, DX
+	JLT f16z4prorow
+
 f16z4pos:
+	MOVQ pf+80(FP), AX
+	TESTQ AX, AX
+	JEQ f16z4pfdone
+	ADDQ CX, AX
+	ADDQ R9, AX
+	DECQ AX
+	CMPQ AX, BX
+	JGE f16z4pfdone
+	MOVL (R8)(AX*4), AX
+	IMULQ R10, AX
+	ADDQ DI, AX
+	MOVQ R10, DX
+
+f16z4pf:
+	PREFETCHT0 (AX)
+	PREFETCHT0 64(AX)
+	ADDQ $128, AX
+	SUBQ $128, DX
+	JG f16z4pf
+
+f16z4pfdone:
 	POS_SETUP
 	VMOVUPS 0(R13), Z0
 	VMOVUPS 64(R13), Z1
@@ -517,14 +764,62 @@ f16z4done:
 	VZEROUPPER
 	RET
 
-// func foldF16AVX512x1(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
-TEXT ·foldF16AVX512x1(SB), NOSPLIT, $0-80
+// func foldF16AVX512x1(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64, pf int)
+TEXT ·foldF16AVX512x1(SB), NOSPLIT, $0-88
 	FOLD_ARGS
 	VPXORD Z8, Z8, Z8
 	VPTERNLOGD $0xff, Z16, Z16, Z16
 	Z_START
 
+	// Prefetch the rows of the first pf+w-1 tokens, which the loop's
+	// look-ahead does not reach.
+	MOVQ pf+80(FP), DX
+	TESTQ DX, DX
+	JEQ f16z1pos
+	ADDQ R9, DX
+	DECQ DX
+	CMPQ DX, BX
+	CMOVQGT BX, DX
+	XORQ SI, SI
+
+f16z1prorow:
+	MOVL (R8)(SI*4), AX
+	IMULQ R10, AX
+	ADDQ DI, AX
+	MOVQ R10, R12
+
+f16z1proline:
+	PREFETCHT0 (AX)
+	PREFETCHT0 64(AX)
+	ADDQ $128, AX
+	SUBQ $128, R12
+	JG f16z1proline
+	INCQ SI
+	CMPQ SI, DX
+	JLT f16z1prorow
+
 f16z1pos:
+	MOVQ pf+80(FP), AX
+	TESTQ AX, AX
+	JEQ f16z1pfdone
+	ADDQ CX, AX
+	ADDQ R9, AX
+	DECQ AX
+	CMPQ AX, BX
+	JGE f16z1pfdone
+	MOVL (R8)(AX*4), AX
+	IMULQ R10, AX
+	ADDQ DI, AX
+	MOVQ R10, DX
+
+f16z1pf:
+	PREFETCHT0 (AX)
+	PREFETCHT0 64(AX)
+	ADDQ $128, AX
+	SUBQ $128, DX
+	JG f16z1pf
+
+f16z1pfdone:
 	POS_SETUP
 	VMOVUPS 0(R13), Z0
 
@@ -562,8 +857,8 @@ f16z1done:
 	VZEROUPPER
 	RET
 
-// func foldF32AVX2x4(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
-TEXT ·foldF32AVX2x4(SB), NOSPLIT, $0-80
+// func foldF32AVX2x4(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64, pf int)
+TEXT ·foldF32AVX2x4(SB), NOSPLIT, $0-88
 	FOLD_ARGS
 	VXORPS Y4, Y4, Y4
 	VXORPS Y5, Y5, Y5
@@ -575,7 +870,55 @@ TEXT ·foldF32AVX2x4(SB), NOSPLIT, $0-80
 	VPCMPEQD Y11, Y11, Y11
 	Y_START
 
+	// Prefetch the rows of the first pf+w-1 tokens, which the loop's
+	// look-ahead does not reach.
+	MOVQ pf+80(FP), DX
+	TESTQ DX, DX
+	JEQ f32y4pos
+	ADDQ R9, DX
+	DECQ DX
+	CMPQ DX, BX
+	CMOVQGT BX, DX
+	XORQ SI, SI
+
+f32y4prorow:
+	MOVL (R8)(SI*4), AX
+	IMULQ R10, AX
+	ADDQ DI, AX
+	MOVQ R10, R12
+
+f32y4proline:
+	PREFETCHT0 (AX)
+	PREFETCHT0 64(AX)
+	ADDQ $128, AX
+	SUBQ $128, R12
+	JG f32y4proline
+	INCQ SI
+	CMPQ SI, DX
+	JLT f32y4prorow
+
 f32y4pos:
+	MOVQ pf+80(FP), AX
+	TESTQ AX, AX
+	JEQ f32y4pfdone
+	ADDQ CX, AX
+	ADDQ R9, AX
+	DECQ AX
+	CMPQ AX, BX
+	JGE f32y4pfdone
+	MOVL (R8)(AX*4), AX
+	IMULQ R10, AX
+	ADDQ DI, AX
+	MOVQ R10, DX
+
+f32y4pf:
+	PREFETCHT0 (AX)
+	PREFETCHT0 64(AX)
+	ADDQ $128, AX
+	SUBQ $128, DX
+	JG f32y4pf
+
+f32y4pfdone:
 	POS_SETUP
 	VMOVUPS 0(R13), Y0
 	VMOVUPS 32(R13), Y1
@@ -636,14 +979,62 @@ f32y4done:
 	VZEROUPPER
 	RET
 
-// func foldF32AVX2x1(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
-TEXT ·foldF32AVX2x1(SB), NOSPLIT, $0-80
+// func foldF32AVX2x1(tab *float32, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64, pf int)
+TEXT ·foldF32AVX2x1(SB), NOSPLIT, $0-88
 	FOLD_ARGS
 	VXORPS Y4, Y4, Y4
 	VPCMPEQD Y8, Y8, Y8
 	Y_START
 
+	// Prefetch the rows of the first pf+w-1 tokens, which the loop's
+	// look-ahead does not reach.
+	MOVQ pf+80(FP), DX
+	TESTQ DX, DX
+	JEQ f32y1pos
+	ADDQ R9, DX
+	DECQ DX
+	CMPQ DX, BX
+	CMOVQGT BX, DX
+	XORQ SI, SI
+
+f32y1prorow:
+	MOVL (R8)(SI*4), AX
+	IMULQ R10, AX
+	ADDQ DI, AX
+	MOVQ R10, R12
+
+f32y1proline:
+	PREFETCHT0 (AX)
+	PREFETCHT0 64(AX)
+	ADDQ $128, AX
+	SUBQ $128, R12
+	JG f32y1proline
+	INCQ SI
+	CMPQ SI, DX
+	JLT f32y1prorow
+
 f32y1pos:
+	MOVQ pf+80(FP), AX
+	TESTQ AX, AX
+	JEQ f32y1pfdone
+	ADDQ CX, AX
+	ADDQ R9, AX
+	DECQ AX
+	CMPQ AX, BX
+	JGE f32y1pfdone
+	MOVL (R8)(AX*4), AX
+	IMULQ R10, AX
+	ADDQ DI, AX
+	MOVQ R10, DX
+
+f32y1pf:
+	PREFETCHT0 (AX)
+	PREFETCHT0 64(AX)
+	ADDQ $128, AX
+	SUBQ $128, DX
+	JG f32y1pf
+
+f32y1pfdone:
 	POS_SETUP
 	VMOVUPS 0(R13), Y0
 
@@ -680,8 +1071,8 @@ f32y1done:
 	VZEROUPPER
 	RET
 
-// func foldF16AVX2x4(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
-TEXT ·foldF16AVX2x4(SB), NOSPLIT, $0-80
+// func foldF16AVX2x4(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64, pf int)
+TEXT ·foldF16AVX2x4(SB), NOSPLIT, $0-88
 	FOLD_ARGS
 	VXORPS Y4, Y4, Y4
 	VXORPS Y5, Y5, Y5
@@ -693,7 +1084,55 @@ TEXT ·foldF16AVX2x4(SB), NOSPLIT, $0-80
 	VPCMPEQD Y11, Y11, Y11
 	Y_START
 
+	// Prefetch the rows of the first pf+w-1 tokens, which the loop's
+	// look-ahead does not reach.
+	MOVQ pf+80(FP), DX
+	TESTQ DX, DX
+	JEQ f16y4pos
+	ADDQ R9, DX
+	DECQ DX
+	CMPQ DX, BX
+	CMOVQGT BX, DX
+	XORQ SI, SI
+
+f16y4prorow:
+	MOVL (R8)(SI*4), AX
+	IMULQ R10, AX
+	ADDQ DI, AX
+	MOVQ R10, R12
+
+f16y4proline:
+	PREFETCHT0 (AX)
+	PREFETCHT0 64(AX)
+	ADDQ $128, AX
+	SUBQ $128, R12
+	JG f16y4proline
+	INCQ SI
+	CMPQ SI, DX
+	JLT f16y4prorow
+
 f16y4pos:
+	MOVQ pf+80(FP), AX
+	TESTQ AX, AX
+	JEQ f16y4pfdone
+	ADDQ CX, AX
+	ADDQ R9, AX
+	DECQ AX
+	CMPQ AX, BX
+	JGE f16y4pfdone
+	MOVL (R8)(AX*4), AX
+	IMULQ R10, AX
+	ADDQ DI, AX
+	MOVQ R10, DX
+
+f16y4pf:
+	PREFETCHT0 (AX)
+	PREFETCHT0 64(AX)
+	ADDQ $128, AX
+	SUBQ $128, DX
+	JG f16y4pf
+
+f16y4pfdone:
 	POS_SETUP
 	VMOVUPS 0(R13), Y0
 	VMOVUPS 32(R13), Y1
@@ -758,14 +1197,62 @@ f16y4done:
 	VZEROUPPER
 	RET
 
-// func foldF16AVX2x1(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64)
-TEXT ·foldF16AVX2x1(SB), NOSPLIT, $0-80
+// func foldF16AVX2x1(tab *uint16, rows *int32, n, w, rowBytes, tapBytes int, bias, mx *float32, win *int32, masks uint64, pf int)
+TEXT ·foldF16AVX2x1(SB), NOSPLIT, $0-88
 	FOLD_ARGS
 	VXORPS Y4, Y4, Y4
 	VPCMPEQD Y8, Y8, Y8
 	Y_START
 
+	// Prefetch the rows of the first pf+w-1 tokens, which the loop's
+	// look-ahead does not reach.
+	MOVQ pf+80(FP), DX
+	TESTQ DX, DX
+	JEQ f16y1pos
+	ADDQ R9, DX
+	DECQ DX
+	CMPQ DX, BX
+	CMOVQGT BX, DX
+	XORQ SI, SI
+
+f16y1prorow:
+	MOVL (R8)(SI*4), AX
+	IMULQ R10, AX
+	ADDQ DI, AX
+	MOVQ R10, R12
+
+f16y1proline:
+	PREFETCHT0 (AX)
+	PREFETCHT0 64(AX)
+	ADDQ $128, AX
+	SUBQ $128, R12
+	JG f16y1proline
+	INCQ SI
+	CMPQ SI, DX
+	JLT f16y1prorow
+
 f16y1pos:
+	MOVQ pf+80(FP), AX
+	TESTQ AX, AX
+	JEQ f16y1pfdone
+	ADDQ CX, AX
+	ADDQ R9, AX
+	DECQ AX
+	CMPQ AX, BX
+	JGE f16y1pfdone
+	MOVL (R8)(AX*4), AX
+	IMULQ R10, AX
+	ADDQ DI, AX
+	MOVQ R10, DX
+
+f16y1pf:
+	PREFETCHT0 (AX)
+	PREFETCHT0 64(AX)
+	ADDQ $128, AX
+	SUBQ $128, DX
+	JG f16y1pf
+
+f16y1pfdone:
 	POS_SETUP
 	VMOVUPS 0(R13), Y0
 
