@@ -111,7 +111,7 @@ func addFoldTrainFlags(fl *pflag.FlagSet, t *trainFlags) {
 	fl.IntVarP(&t.jobs, "jobs", "j", 0, "with --folds: training threads (default: all cores)")
 	fl.StringVar(&t.optimizer, "optimizer", model.OptAdadelta, "with --folds: adadelta or adam")
 	fl.Float64Var(&t.lr, "learning-rate", 0, "with --folds: learning rate (default: 1 for adadelta, 0.001 for adam)")
-	fl.IntVar(&t.minCount, "min-count", 2, "with --folds: words seen fewer times share the hash buckets")
+	fl.IntVar(&t.minCount, "min-count", 1, "with --folds: words seen fewer times share the hash buckets")
 	fl.IntVar(&t.maxWords, "max-words", 0, "with --folds: keep at most this many words; 0 for all")
 	fl.IntVar(&t.buckets, "buckets", model.DefaultBuckets, "with --folds: shared rows for words outside the vocabulary")
 	fl.StringVar(&t.classWeights, "class-weights", "none", "with --folds: none or balanced")

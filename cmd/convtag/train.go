@@ -100,7 +100,7 @@ The same data, flags, --seed and --jobs give a byte-identical model file.
 	fl.IntVarP(&f.jobs, "jobs", "j", 0, "worker threads (default: all cores); the model depends on it")
 	fl.StringVar(&f.optimizer, "optimizer", model.OptAdadelta, "adadelta or adam")
 	fl.Float64Var(&f.lr, "learning-rate", 0, "learning rate (default: 1 for adadelta, 0.001 for adam)")
-	fl.IntVar(&f.minCount, "min-count", 2, "words seen fewer times share the hash buckets instead of a row of their own")
+	fl.IntVar(&f.minCount, "min-count", 1, "words seen fewer times share the hash buckets instead of a row of their own")
 	fl.IntVar(&f.maxWords, "max-words", 0, "keep at most this many words, most frequent first; 0 for all")
 	fl.IntVar(&f.buckets, "buckets", model.DefaultBuckets, "shared rows for words outside the vocabulary")
 	fl.StringVar(&f.vectors, "vectors", "", "initial word vectors (text or binary word-vector format)")
