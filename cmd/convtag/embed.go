@@ -81,7 +81,7 @@ updated without locks and vary from run to run.
 	fl.IntVar(&f.o.Window, "window", sgns.DefaultWindow, "largest distance to a context word (each centre word draws 1..window)")
 	fl.IntVar(&f.o.Negative, "negative", sgns.DefaultNegative, "noise words per context word")
 	fl.IntVar(&f.o.MinCount, "min-count", sgns.DefaultMinCount, "leave out words seen fewer times")
-	fl.Float64Var(&f.sample, "subsample", sgns.DefaultSample, "sub-sampling threshold for frequent words; 0 turns it off")
+	fl.Float64Var(&f.sample, "subsample", sgns.DefaultSample, "sub-sampling threshold for frequent words (1e-3 keeps more of a small input); 0 turns it off")
 	fl.Float64Var(&f.o.Alpha, "learning-rate", sgns.DefaultAlpha, "starting learning rate, decayed linearly to nothing")
 	fl.IntVar(&f.o.Epochs, "epochs", sgns.DefaultEpochs, "passes over the input")
 	fl.Uint64Var(&f.o.Seed, "seed", 1, "seed for initialisation, sampling and windows")
