@@ -145,7 +145,7 @@ func (c *cutter) ship(cur *block, k int) *block {
 	}
 	next.file = cur.file
 	next.in = append(next.in, cur.in[k:]...)
-	next.lastNL = -1
+	next.lastNL = bytes.LastIndexByte(next.in, '\n') // the ramp-up cuts before the last newline
 	cur.in = cur.in[:k]
 	if !c.send(cur) {
 		return nil
@@ -235,6 +235,19 @@ func (c *cutter) run() {
 	}
 }
 
+// firstBlock is the size of the first block. Blocks then double up to
+// the configured size, so the first records of a large input are written
+// within milliseconds of the start instead of after a whole block.
+const firstBlock = 16 << 10
+
+// limit is the size at which the current block is sent.
+func (c *cutter) limit() int {
+	if c.seq >= 16 {
+		return c.cfg.blockSize
+	}
+	return min(c.cfg.blockSize, firstBlock<<c.seq)
+}
+
 // add appends data to cur, sending blocks as they fill.
 func (c *cutter) add(cur *block, data []byte, long bool) (*block, bool) {
 	for len(data) > 0 {
@@ -259,9 +272,17 @@ func (c *cutter) add(cur *block, data []byte, long bool) (*block, bool) {
 			cur.lastNL = n + k
 		}
 		data = nil
-		for len(cur.in) >= c.cfg.blockSize {
+		for len(cur.in) >= c.limit() {
 			if cur.lastNL >= 0 {
-				if cur = c.ship(cur, cur.lastNL+1); cur == nil {
+				k := cur.lastNL + 1
+				if lim := c.limit(); k > lim {
+					// Cut at the last newline within the limit, so that the
+					// ramp-up of the first blocks holds for big reads too.
+					if j := bytes.LastIndexByte(cur.in[:lim], '\n'); j >= 0 {
+						k = j + 1
+					}
+				}
+				if cur = c.ship(cur, k); cur == nil {
 					return nil, false
 				}
 				continue

@@ -38,22 +38,6 @@ while (($#)); do
 done
 mkdir -p "$CACHE"
 
-# ---------------------------------------------------------------------------
-# PLACEHOLDER: how the d=300, 3x100-filter, 50,000-word benchmark model is
-# made. Written while `convtag train` was being built; the flags below match
-# its --help at the time (--max-words caps the vocabulary, --min-count 1
-# gives every word seen a row). If the command changes, fix this one
-# function; nothing else in the script depends on its flags.
-# Speed does not depend on how good the model is, so one epoch is enough.
-# If training fails, the model is built untrained (random weights over the
-# generator's 50,000 words, folded) by testdata/bench/mkmodel.go, which has
-# the same shape and so the same speed; the table says which was used.
-TRAIN_RECORDS=300000 # enough for nearly all 50,000 words to occur (Zipf s=1.1)
-make_d300_model() { # $1 = model file to write, $2 = labelled training file
-	"$CONVTAG" train -o "$1" --dim 300 --widths 3,4,5 --filters 100 \
-		--max-words 50000 --min-count 1 --epochs 1 --dev-fraction 0.01 --quiet "$2"
-}
-# ---------------------------------------------------------------------------
 
 need() { command -v "$1" >/dev/null || { echo "run.sh: $1 not found; $2" >&2; exit 1; }; }
 need go "install Go"
@@ -133,8 +117,8 @@ measure cat zstd bash -c 'zstd -dc "$1"' _ "$LOG.zst"
 measure "jq -c ." plain jq -c . "$LOG"
 measure "jq -c ." zstd bash -c 'zstd -dc "$1" | jq -c .' _ "$LOG.zst"
 
-D300=$CACHE/model-d300-v50000-$GENHASH.safetensors # delete it to remake it
-FIRST_BUILTIN=n/a FIRST_D300=n/a
+D300=$CACHE/model-d300-v50000-$GENHASH # + -f32/-f16.safetensors; delete to remake
+FIRST_BUILTIN=n/a FIRST_D300=""
 if ((HAVE_TAG)); then
 	if ((HAVE_BUILTIN)); then
 		measure "convtag built-in" plain "$CONVTAG" tag -j "$JOBS" "$LOG"
@@ -144,29 +128,31 @@ if ((HAVE_TAG)); then
 		na "convtag built-in" plain "the built-in model does not tag yet"
 		na "convtag built-in" zstd "the built-in model does not tag yet"
 	fi
-	if [[ ! -s $D300 ]]; then
-		TRAIN=$CACHE/train-v50000-$TRAIN_RECORDS.jsonl
-		[[ -s $TRAIN ]] || "$GEN" -labelled -vocab 50000 -n "$TRAIN_RECORDS" -seed 2 >"$TRAIN"
-		echo "making the d=300 model (make_d300_model)" >&2
-		if make_d300_model "$D300.tmp" "$TRAIN"; then
-			mv "$D300.tmp" "$D300" && echo trained >"$D300.how"
-		else
-			echo "run.sh: make_d300_model failed (fix it); building an untrained model of the same shape" >&2
-			"$GEN" -words -vocab 50000 >"$CACHE/words-50000.txt"
+	# Tagging speed depends on a model's shape, not on how well it was
+	# trained, so the d=300 models are built untrained (random weights over the
+	# generator's 50,000 most frequent words, folded) with mkmodel.go, in
+	# single (F32) and half (F16, --fold-half in train) precision.
+	for prec in f32 f16; do
+		M=$D300-$prec.safetensors
+		if [[ ! -s $M ]]; then
+			[[ -s $CACHE/words-50000.txt ]] || "$GEN" -words -vocab 50000 >"$CACHE/words-50000.txt"
+			half=false
+			[[ $prec == f16 ]] && half=true
+			echo "building the d=300 $prec model" >&2
 			go run ./testdata/bench/mkmodel.go -words "$CACHE/words-50000.txt" -dim 300 -filters 100 \
-				-widths 3,4,5 -o "$D300.tmp" && mv "$D300.tmp" "$D300" && echo "untrained (mkmodel.go)" >"$D300.how"
+				-widths 3,4,5 -half=$half -o "$M.tmp" && mv "$M.tmp" "$M"
 		fi
-	fi
-	if [[ -s $D300 ]] && tags -m "$D300"; then
-		measure "convtag d=300" plain "$CONVTAG" tag -m "$D300" -j "$JOBS" "$LOG"
-		measure "convtag d=300" zstd "$CONVTAG" tag -m "$D300" -j "$JOBS" "$LOG.zst"
-		FIRST_D300=$(first_output "$CONVTAG" tag -m "$D300" -j "$JOBS" "$LOG")
-	else
-		na "convtag d=300" plain "no model"
-		na "convtag d=300" zstd "no model"
-	fi
+		if [[ -s $M ]] && tags -m "$M"; then
+			measure "convtag d=300 $prec" plain "$CONVTAG" tag -m "$M" -j "$JOBS" "$LOG"
+			measure "convtag d=300 $prec" zstd "$CONVTAG" tag -m "$M" -j "$JOBS" "$LOG.zst"
+			FIRST_D300="$FIRST_D300 $prec $(first_output "$CONVTAG" tag -m "$M" -j "$JOBS" "$LOG")"
+		else
+			na "convtag d=300 $prec" plain "no model"
+			na "convtag d=300 $prec" zstd "no model"
+		fi
+	done
 else
-	for t in "convtag built-in" "convtag d=300"; do
+	for t in "convtag built-in" "convtag d=300 f32" "convtag d=300 f16"; do
 		na "$t" plain "convtag tag not available yet"
 		na "$t" zstd "convtag tag not available yet"
 	done
@@ -203,11 +189,11 @@ for row in "${RESULTS[@]}"; do
 	awk -v n="$N" -v b="$BYTES" -v s="$secs" -v k="$rss" -v j="${JQ[$input]:-}" -v name="$name" -v inp="$input" -v c="$cpu" 'BEGIN{
 		ratio = (j == "" ? "n/a" : sprintf("%.2fx", j / s))
 		printf "%-18s %-6s %12.0f %9.1f %13.1f %7s %9s\n", name, inp, n / s, b / s / 1e6, k / 1024, c, ratio }'
-	[[ $name == "convtag d=300" && $input == plain ]] && D300_RPS=$(awk -v n="$N" -v s="$secs" 'BEGIN{printf "%.0f", n/s}')
+	[[ $name == "convtag d=300 f16" && $input == plain ]] && D300_RPS=$(awk -v n="$N" -v s="$secs" 'BEGIN{printf "%.0f", n/s}')
 done
 printf '%-18s %-6s %12s %9s %13s %7s\n' "pytorch d=300" ids "$TORCH" - - "$TORCH_CPU"
-printf '\non zstd input the cat row is `zstd -dc`, and jq reads from `zstd -dc |`; d=300 model: %s\n' "$(cat "$D300.how" 2>/dev/null || echo none)"
-printf 'first output: built-in %s s, d=300 %s s\n' "$FIRST_BUILTIN" "$FIRST_D300"
+printf '\non zstd input the cat row is `zstd -dc`, and jq reads from `zstd -dc |`; d=300 models: untrained, 50,000 words + 10,000 buckets, folded\n'
+printf 'first output (s): built-in %s,%s\n' "$FIRST_BUILTIN" "${FIRST_D300:- d=300 n/a}"
 if [[ -n $D300_RPS && $TORCH != n/a ]]; then
-	awk -v a="$D300_RPS" -v b="$TORCH" 'BEGIN{printf "convtag d=300 / pytorch d=300: %.1fx (sentences/s)\n", a / b}'
+	awk -v a="$D300_RPS" -v b="$TORCH" 'BEGIN{printf "convtag d=300 f16 / pytorch d=300: %.1fx (sentences/s)\n", a / b}'
 fi
