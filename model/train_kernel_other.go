@@ -1,4 +1,4 @@
-//go:build !amd64
+//go:build !amd64 || purego
 
 package model
 
@@ -7,3 +7,6 @@ func trConv(a []float32, lda int, b []float32, k int, c []float32, ldc int) {
 }
 
 func trAxpy(alpha float32, x, y []float32) { trAxpyGo(alpha, x, y) }
+
+// trainAVX2 is false: there are no assembly kernels on this build.
+var trainAVX2 = false
