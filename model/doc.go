@@ -9,3 +9,25 @@
 // by any number of goroutines. Per-goroutine scratch memory lives in a
 // Predictor, which must not be shared.
 package model
+
+// The model file is a safetensors container (8-byte little-endian header
+// length, JSON header, one contiguous buffer). Tensors, with
+// rows = 1 + V + B (padding, words, buckets):
+//
+//	embedding          F32 [rows, d]
+//	convs.{i}.weight   F32 [F, d, w_i]   torch.nn.Conv1d layout
+//	convs.{i}.bias     F32 [F]
+//	hidden.weight      F32 [H, 3F]       only when Config.Hidden > 0
+//	hidden.bias        F32 [H]
+//	output.weight      F32 [C, 3F or H]
+//	output.bias        F32 [C]
+//	fold.{i}           F32 or F16 [rows, w_i, F]   optional, all widths or none
+//	vocab.offsets      I64 [V+1]
+//	vocab.index        I32 [S]           open addressing, S a power of two > V
+//	vocab.bytes        U8  [n]
+//
+// __metadata__ (string values): format "convtag", format_version "1",
+// labels (JSON array), config (JSON Config), tokenizer (JSON
+// TokenizerSettings), training (JSON summary, from train), baseline (the
+// naive-Bayes model, from train), checksum "sha256:<hex of the buffer>",
+// created_by.

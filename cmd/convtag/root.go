@@ -160,13 +160,6 @@ func commandName(root *cobra.Command, args []string) string {
 
 func oneLine(s string) string { return strings.ReplaceAll(strings.TrimSpace(s), "\n", "; ") }
 
-// notYet is the body of a command a later piece of work builds.
-func notYet(name string) func(*cobra.Command, []string) error {
-	return func(*cobra.Command, []string) error {
-		return withCode(exitFailure, fmt.Errorf("%s: not yet built", name))
-	}
-}
-
 // startCPUProfile writes a CPU profile of the whole run to path.
 func startCPUProfile(path string) (stop func(), err error) {
 	f, err := os.Create(path)
