@@ -5,7 +5,7 @@ import (
 	"fmt"
 	"testing"
 
-	"convtag/internal/uci"
+	"convtag/model/internal/uci"
 )
 
 // benchData returns the UCI sentences as examples for a model of dimension

@@ -1,16 +1,21 @@
 package model
 
 import (
+	"bytes"
 	"encoding/json"
 	"errors"
+	"fmt"
 	"math"
 	"os"
+	"os/exec"
+	"path/filepath"
+	"slices"
 	"strconv"
 	"strings"
 	"testing"
 	"time"
 
-	"convtag/internal/uci"
+	"convtag/model/internal/uci"
 	"convtag/model/nb"
 )
 
@@ -60,81 +65,113 @@ func uciSentences(t *testing.T) []uci.Sentence {
 type uciFold struct {
 	Train, Dev, Test []Example
 	Rows             int
+	k                int // index within its set
 	nbAcc            float64
+}
+
+// uciSet is one cross-validation: the sentences of the named sources.
+type uciSet struct {
+	name    string
+	sources []string
+}
+
+// uciSets are the sets CONVTAG_UCI_SOURCES asks for: unset or "1", the
+// three sources joined and each on its own; "0", joined only; "only", each
+// source only.
+func uciSets() []uciSet {
+	var sets []uciSet
+	v := os.Getenv("CONVTAG_UCI_SOURCES")
+	if v != "only" {
+		sets = append(sets, uciSet{"joined", uci.Sources})
+	}
+	if v != "0" {
+		for _, s := range uci.Sources {
+			sets = append(sets, uciSet{s, []string{s}})
+		}
+	}
+	return sets
 }
 
 // TestUCICrossValidation runs stratified k-fold cross-validation on the
 // UCI Sentiment Labelled Sentences (Kotzias et al. 2015; fetched from npm
 // sentiment@5.0.2) joined and per source, for the network and the
 // naive-Bayes baseline, and trains the same network with the same recipe,
-// tokens, vocabulary and folds in PyTorch (testdata/torch_train.py). The
-// network's mean accuracy on the joined set must be within 2 points of
-// PyTorch's; the baseline's mean near 0.83 (measured 0.834 +- 0.018 for
-// uni+bigram naive Bayes, 10-fold, in the issue; we accept 0.80..0.86).
+// tokens, vocabulary and folds in PyTorch (testdata/torch_train.py). On
+// the joined set (300 test sentences a fold) the network's mean accuracy
+// must be within 2 points of PyTorch's, and the baseline's mean near 0.83
+// (measured 0.834 +- 0.018 for uni+bigram naive Bayes, 10-fold, in the
+// issue; we accept 0.80..0.86). Per source (100 test sentences a fold) the
+// three figures are logged, not checked: there the spread between two
+// trainings of the same recipe is about as large as the tolerance.
+//
+// PyTorch runs on one thread in three processes, the folds dealt out by
+// size, beside the Go trainer on one worker, all sharing the two cores;
+// the logged times are of that shared run, not benchmarks.
 func TestUCICrossValidation(t *testing.T) {
 	uciEnabled(t)
 	requireTorch(t)
-	all := uciSentences(t)
+	sentences := uciSentences(t)
 	r := uciRecipe
 	if v := os.Getenv("CONVTAG_UCI_FOLDS"); v != "" {
-		r.Folds, _ = strconv.Atoi(v)
-	}
-	sets := []struct {
-		name    string
-		sources []string
-	}{{"joined", uci.Sources}}
-	// CONVTAG_UCI_SOURCES=1 adds each source on its own (network against
-	// baseline, for the note); =only runs just those.
-	if os.Getenv("CONVTAG_UCI_SOURCES") == "only" {
-		sets = sets[:0]
-	}
-	if v := os.Getenv("CONVTAG_UCI_SOURCES"); v == "1" || v == "only" {
-		for _, s := range uci.Sources {
-			sets = append(sets, struct {
-				name    string
-				sources []string
-			}{s, []string{s}})
+		k, err := strconv.Atoi(v)
+		if err != nil || k < 2 {
+			t.Fatalf("CONVTAG_UCI_FOLDS=%q: want a number of folds >= 2", v)
 		}
+		r.Folds = k
 	}
-	for _, set := range sets {
+	type setRun struct {
+		uciSet
+		folds []uciFold
+		first int // index of the set's first fold in all
+	}
+	var runs []*setRun
+	var all []uciFold
+	for _, set := range uciSets() {
 		var texts []string
 		var labels []int
-		for _, s := range all {
-			for _, src := range set.sources {
-				if s.Source == src {
-					texts = append(texts, s.Text)
-					l := 0
-					if s.Label == "positive" {
-						l = 1
-					}
-					labels = append(labels, l)
+		for _, s := range sentences {
+			if slices.Contains(set.sources, s.Source) {
+				texts = append(texts, s.Text)
+				l := 0
+				if s.Label == "positive" {
+					l = 1
 				}
+				labels = append(labels, l)
 			}
 		}
-		folds := uciFolds(t, texts, labels)
-		var ours, base []float64
+		run := &setRun{uciSet: set, folds: uciFolds(t, texts, labels, r.Folds), first: len(all)}
+		all = append(all, run.folds...)
+		runs = append(runs, run)
+	}
+	torch := startTorchPool(t, all, 3)
+	ours := make([]float64, len(all))
+	goTime := make([]time.Duration, len(runs))
+	for i, run := range runs {
 		start := time.Now()
-		for k, f := range folds {
-			acc := uciTrainGo(t, f, k)
-			ours = append(ours, acc)
-			base = append(base, f.nbAcc)
-			t.Logf("%s fold %d: network %.4f  naive Bayes %.4f", set.name, k+1, acc, f.nbAcc)
+		for k, f := range run.folds {
+			acc, epochs := uciTrainGo(t, f, k, 1)
+			ours[run.first+k] = acc
+			t.Logf("%s fold %d: network %.4f (%d epochs)", run.name, k+1, acc, epochs)
 		}
-		goTime := time.Since(start)
-		mo, so := meanStd(ours)
-		mb, sb := meanStd(base)
-		if set.name != "joined" {
-			// Per source: figures for the note, network against baseline.
-			t.Logf("%s %d-fold: network %.4f +- %.4f (%.0fs), naive Bayes %.4f +- %.4f", set.name, r.Folds, mo, so, goTime.Seconds(), mb, sb)
+		goTime[i] = time.Since(start)
+	}
+	ref, refEpochs, refSec := torch.wait(t)
+	t.Logf("pytorch: %.0fs of training in all (1 thread a process, sharing the cores)", refSec)
+	for i, run := range runs {
+		var o, p, nb []float64
+		for k, f := range run.folds {
+			j := run.first + k
+			o, p, nb = append(o, ours[j]), append(p, ref[j]), append(nb, f.nbAcc)
+			t.Logf("%s fold %d: network %.4f  pytorch %.4f (%d epochs)  naive Bayes %.4f", run.name, k+1, ours[j], ref[j], refEpochs[j], f.nbAcc)
+		}
+		mo, so := meanStd(o)
+		mr, sr := meanStd(p)
+		mb, sb := meanStd(nb)
+		t.Logf("%s %d-fold: network %.4f +- %.4f (%.0fs), pytorch %.4f +- %.4f, naive Bayes %.4f +- %.4f",
+			run.name, r.Folds, mo, so, goTime[i].Seconds(), mr, sr, mb, sb)
+		if run.name != "joined" {
 			continue
 		}
-		ref, torchTime := uciTrainTorch(t, folds)
-		for k, a := range ref {
-			t.Logf("%s fold %d: pytorch %.4f", set.name, k+1, a)
-		}
-		mr, sr := meanStd(ref)
-		t.Logf("%s %d-fold: network %.4f +- %.4f (%.0fs), pytorch %.4f +- %.4f (%.0fs), naive Bayes %.4f +- %.4f",
-			set.name, r.Folds, mo, so, goTime.Seconds(), mr, sr, torchTime, mb, sb)
 		if math.Abs(mo-mr) > 0.02 {
 			t.Errorf("network mean %.4f is not within 2 points of PyTorch's %.4f", mo, mr)
 		}
@@ -148,11 +185,9 @@ func TestUCICrossValidation(t *testing.T) {
 // training portion, the training portion split into train and dev, and the
 // test fold; and scores the naive-Bayes baseline trained on the whole
 // training portion.
-func uciFolds(t *testing.T, texts []string, labels []int) []uciFold {
+func uciFolds(t *testing.T, texts []string, labels []int, folds int) []uciFold {
 	r := uciRecipe
-	if v := os.Getenv("CONVTAG_UCI_FOLDS"); v != "" {
-		r.Folds, _ = strconv.Atoi(v)
-	}
+	r.Folds = folds
 	tok := NewTokenizer(TokenizerSettings{})
 	var ts Tokens
 	tokens := make([][]string, len(texts))
@@ -200,8 +235,7 @@ func uciFolds(t *testing.T, texts []string, labels []int) []uciFold {
 			sub[j] = labels[i]
 		}
 		tr, dv := StratifiedSplit(sub, r.DevFraction, r.Seed+uint64(k))
-		var f uciFold
-		f.Rows = m.Rows()
+		f := uciFold{Rows: m.Rows(), k: k}
 		for _, j := range tr {
 			f.Train = append(f.Train, ex(trainIdx[j]))
 		}
@@ -224,7 +258,9 @@ func uciFolds(t *testing.T, texts []string, labels []int) []uciFold {
 	return out
 }
 
-func uciTrainGo(t *testing.T, f uciFold, k int) float64 {
+// uciTrainGo trains fold k's network on jobs workers and returns its test
+// accuracy and the epochs run.
+func uciTrainGo(t *testing.T, f uciFold, k, jobs int) (float64, int) {
 	r := uciRecipe
 	cfg := Config{Dim: r.Dim, Widths: r.Widths, Filters: r.Filters, Buckets: r.Buckets}
 	// The words only fix the row count here; the examples already hold rows.
@@ -236,8 +272,8 @@ func uciTrainGo(t *testing.T, f uciFold, k int) float64 {
 	if err != nil {
 		t.Fatal(err)
 	}
-	_, err = Train(m, f.Train, f.Dev, TrainOptions{Epochs: r.Epochs, Patience: r.Patience, Batch: r.Batch,
-		Seed: r.Seed + uint64(k), Jobs: 2, Opt: r.Opt, Dropout: r.Dropout, MaxNorm: r.MaxNorm})
+	res, err := Train(m, f.Train, f.Dev, TrainOptions{Epochs: r.Epochs, Patience: r.Patience, Batch: r.Batch,
+		Seed: r.Seed + uint64(k), Jobs: jobs, Opt: r.Opt, Dropout: r.Dropout, MaxNorm: r.MaxNorm})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -249,35 +285,143 @@ func uciTrainGo(t *testing.T, f uciFold, k int) float64 {
 		gold = append(gold, e.Label)
 		pred = append(pred, trArgmax(w.forward(p, e.Rows, 0, 0, 0)))
 	}
-	return Accuracy(gold, pred)
+	return Accuracy(gold, pred), res.EpochsRun
 }
 
-// uciTrainTorch runs the reference trainer on the same folds and returns
-// its test accuracy per fold and its training wall time in seconds.
-func uciTrainTorch(t *testing.T, folds []uciFold) ([]float64, float64) {
+// torchInput is testdata/torch_train.py's input: the recipe and the folds
+// (fold k of a set is seeded with Seed+k on both sides).
+func torchInput(folds []uciFold, seeds []uint64, threads int) map[string]any {
 	r := uciRecipe
 	var fs []map[string]any
-	for _, f := range folds {
-		fs = append(fs, map[string]any{"train": f.Train, "dev": f.Dev, "test": f.Test, "rows": f.Rows})
+	for i, f := range folds {
+		fs = append(fs, map[string]any{"train": f.Train, "dev": f.Dev, "test": f.Test, "rows": f.Rows, "seed": seeds[i]})
 	}
 	in := map[string]any{"dim": r.Dim, "widths": r.Widths, "filters": r.Filters, "epochs": r.Epochs,
 		"patience": r.Patience, "batch": r.Batch, "dropout": r.Dropout, "max_norm": r.MaxNorm,
-		"optimizer": r.Opt, "lr": 1.0, "seed": r.Seed, "labels": 2, "threads": 2, "folds": fs}
+		"optimizer": r.Opt, "lr": 1.0, "seed": r.Seed, "labels": 2, "threads": threads, "folds": fs}
 	if r.Opt == OptAdam {
 		in["lr"] = AdamLearningRate
 	}
-	out := runTorch(t, "torch_train.py", in)
-	var res struct {
-		Accuracy []float64 `json:"accuracy"`
-		Seconds  float64   `json:"seconds"`
+	return in
+}
+
+// torchResult is testdata/torch_train.py's output.
+type torchResult struct {
+	Accuracy []float64 `json:"accuracy"`
+	Epochs   []int     `json:"epochs"`
+	Seconds  float64   `json:"seconds"` // training and scoring, all folds
+}
+
+// torchPool is testdata/torch_train.py running in the background, in
+// several single-threaded processes.
+type torchPool struct {
+	cmds   []*exec.Cmd
+	idx    [][]int // per process, the indices of its folds
+	stdout []*bytes.Buffer
+	stderr []*bytes.Buffer
+	n      int
+	done   bool
+}
+
+// startTorchPool starts the reference trainer on folds in procs processes,
+// each fold going to the process with the fewest training tokens so far
+// (largest folds first); wait collects the results. The processes are
+// killed if the test ends first. A fold is seeded with the recipe's seed
+// plus its index within its set, as uciTrainGo does.
+func startTorchPool(t *testing.T, folds []uciFold, procs int) *torchPool {
+	t.Helper()
+	tp := &torchPool{n: len(folds), idx: make([][]int, procs)}
+	order := make([]int, len(folds))
+	size := make([]int, len(folds))
+	for i, f := range folds {
+		order[i] = i
+		size[i] = tokensOf(f.Train)
 	}
-	if err := json.Unmarshal(out, &res); err != nil {
-		t.Fatalf("torch_train.py: %v: %s", err, strings.TrimSpace(string(out)))
+	slices.SortStableFunc(order, func(a, b int) int { return size[b] - size[a] })
+	load := make([]int, procs)
+	for _, i := range order {
+		p := 0
+		for q := range load {
+			if load[q] < load[p] {
+				p = q
+			}
+		}
+		load[p] += size[i]
+		tp.idx[p] = append(tp.idx[p], i)
 	}
-	if len(res.Accuracy) != len(folds) {
-		t.Fatalf("torch_train.py: %d folds, want %d", len(res.Accuracy), len(folds))
+	dir := t.TempDir()
+	for p, idx := range tp.idx {
+		if len(idx) == 0 {
+			continue
+		}
+		var fs []uciFold
+		var seeds []uint64
+		for _, i := range idx {
+			fs = append(fs, folds[i])
+			seeds = append(seeds, uciRecipe.Seed+uint64(folds[i].k))
+		}
+		b, err := json.Marshal(torchInput(fs, seeds, 1))
+		if err != nil {
+			t.Fatal(err)
+		}
+		path := filepath.Join(dir, fmt.Sprintf("in%d.json", p))
+		if err := os.WriteFile(path, b, 0o644); err != nil {
+			t.Fatal(err)
+		}
+		cmd := exec.Command("/usr/bin/python3", filepath.Join("..", "testdata", "torch_train.py"), path)
+		var so, se bytes.Buffer
+		cmd.Stdout, cmd.Stderr = &so, &se
+		if err := cmd.Start(); err != nil {
+			t.Fatalf("torch_train.py: %v", err)
+		}
+		tp.cmds, tp.stdout, tp.stderr = append(tp.cmds, cmd), append(tp.stdout, &so), append(tp.stderr, &se)
 	}
-	return res.Accuracy, res.Seconds
+	t.Cleanup(func() {
+		if !tp.done {
+			for _, c := range tp.cmds {
+				c.Process.Kill()
+				c.Wait()
+			}
+		}
+	})
+	return tp
+}
+
+// wait returns every fold's test accuracy and epochs run, in the order of
+// the folds given to startTorchPool, and the processes' summed seconds.
+func (tp *torchPool) wait(t *testing.T) (acc []float64, epochs []int, seconds float64) {
+	t.Helper()
+	acc, epochs = make([]float64, tp.n), make([]int, tp.n)
+	var idx [][]int
+	for _, x := range tp.idx {
+		if len(x) > 0 {
+			idx = append(idx, x)
+		}
+	}
+	var failed error
+	for p, cmd := range tp.cmds {
+		if err := cmd.Wait(); err != nil && failed == nil {
+			failed = fmt.Errorf("%v: %s", err, tp.stderr[p].String())
+		}
+	}
+	tp.done = true
+	if failed != nil {
+		t.Fatalf("torch_train.py: %v", failed)
+	}
+	for p := range tp.cmds {
+		var res torchResult
+		if err := json.Unmarshal(tp.stdout[p].Bytes(), &res); err != nil {
+			t.Fatalf("torch_train.py: %v: %s", err, strings.TrimSpace(tp.stdout[p].String()))
+		}
+		if len(res.Accuracy) != len(idx[p]) || len(res.Epochs) != len(idx[p]) {
+			t.Fatalf("torch_train.py: %d folds, want %d", len(res.Accuracy), len(idx[p]))
+		}
+		for j, i := range idx[p] {
+			acc[i], epochs[i] = res.Accuracy[j], res.Epochs[j]
+		}
+		seconds += res.Seconds
+	}
+	return acc, epochs, seconds
 }
 
 func meanStd(x []float64) (float64, float64) {

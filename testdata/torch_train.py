@@ -2,20 +2,33 @@
 
 Reads a JSON file (argv[1]) with the recipe (dim, widths, filters, epochs,
 patience, batch, dropout, max_norm, optimizer "adadelta" or "adam", lr,
-seed, labels, threads) and folds, each with "rows" (embedding rows) and
+seed, labels, threads) and folds, each with "rows" (embedding rows), an
+optional "seed" (default: the recipe's seed plus the fold's index), and
 "train", "dev", "test" lists of {"rows": [...], "label": k} (the token rows
 are computed by convtag, so both sides see the same tokens and vocabulary).
 For each fold it trains from PyTorch's own seeded initialisation (embedding
 uniform in [-0.25, 0.25] with row 0 as padding, torch's default Conv1d and
-Linear initialisation), shuffling each epoch, in mini-batches, with dropout
-on the pooled features, max-norm on the output weight rows after each step,
-and early stopping on dev accuracy (keeping the best epoch; patience < 0
-means never stop early), then scores the test list. The embedding is
-updated lazily (only rows in the batch): torch.optim.SparseAdam for Adam,
-and the same Adadelta arithmetic as torch.optim.Adadelta restricted to the
-batch's rows for Adadelta; every other tensor uses torch.optim.Adadelta or
-torch.optim.Adam. Prints JSON: per-fold test accuracy, epochs run, and the
-training wall time in seconds.
+Linear initialisation, which convtag's model.New copies), shuffling each
+epoch, in mini-batches, with dropout on the pooled features, max-norm on
+the output weight rows after each step, and early stopping on dev accuracy
+(keeping the best epoch; patience < 0 means never stop early), then scores
+the test list. The embedding is updated lazily (only rows in the batch):
+torch.optim.SparseAdam for Adam, and the same Adadelta arithmetic as
+torch.optim.Adadelta restricted to the batch's rows for Adadelta; every
+other tensor uses torch.optim.Adadelta or torch.optim.Adam. Prints JSON:
+per-fold test accuracy, epochs run, and the training wall time in seconds.
+
+Windows: a text of n tokens (an empty text counts as one padding token)
+has exactly n windows per width w, the window at p covering tokens
+p..p+w-1 with zero rows past the end (convtag's contract: conv1d over
+F.pad(x, (0, w-1)), max over the n positions, ReLU). Instead of padding
+every text of a batch to its longest one, the batch's texts are laid end
+to end in one sequence, each followed by max(widths)-1 padding rows, and
+convolved once per width; each text's n window outputs are then gathered
+into a [batch, longest] grid, short texts repeating their last window
+(a repeat cannot change a maximum, and its gradient reaches the same
+window), so the pooled features and their gradients are those of the
+contract while the convolution does about the work of the real tokens.
 """
 import copy
 import json
@@ -38,44 +51,60 @@ class Net(nn.Module):
         self.convs = nn.ModuleList(nn.Conv1d(d, nf, w) for w in widths)
         self.out = nn.Linear(nf * len(widths), classes)
 
-    def forward(self, ids, lens, dropout):
-        x = self.emb(ids).transpose(1, 2)  # [B, d, L]
-        length = ids.shape[1]
-        pad = torch.arange(length)[None, :] >= lens[:, None]  # windows past the text
+    def forward(self, b, dropout):
+        x = self.emb(b.ids).t()[None]  # [1, d, T]
         feats = []
-        for w, conv in zip(self.widths, self.convs):
-            y = F.relu(conv(F.pad(x, (0, w - 1))))  # [B, F, L]: every token starts a window
-            feats.append(y.masked_fill(pad[:, None, :], 0).max(dim=2).values)
+        for conv in self.convs:
+            y = conv(x)[0]  # [F, T-w+1]: window outputs at every position
+            y = y.index_select(1, b.gather).view(y.shape[0], b.size, -1)
+            feats.append(F.relu(y.max(dim=2).values).t())  # [B, F]
         h = torch.cat(feats, dim=1)
         if dropout > 0:
             h = F.dropout(h, p=dropout, training=True)
         return self.out(h)
 
 
-def batch(examples):
-    lens = [max(1, len(e["rows"])) for e in examples]
-    ids = torch.zeros(len(examples), max(lens), dtype=torch.long)
-    for i, e in enumerate(examples):
-        if e["rows"]:
-            ids[i, : len(e["rows"])] = torch.tensor(e["rows"], dtype=torch.long)
-    labels = torch.tensor([e["label"] for e in examples], dtype=torch.long)
-    return ids, torch.tensor(lens), labels
+class Batch:
+    """Texts laid end to end with gap padding rows after each."""
+
+    def __init__(self, examples, gap):
+        ids, gather = [], []
+        longest = max(max(1, len(e["rows"])) for e in examples)
+        for e in examples:
+            rows = e["rows"] or [0]
+            s = len(ids)
+            ids.extend(rows)
+            ids.extend([0] * gap)
+            n = len(rows)
+            gather.extend(s + min(p, n - 1) for p in range(longest))
+        self.size = len(examples)
+        self.ids = torch.tensor(ids, dtype=torch.long)
+        self.gather = torch.tensor(gather, dtype=torch.long)
+        self.labels = torch.tensor([e["label"] for e in examples], dtype=torch.long)
 
 
-def accuracy(net, examples, size=500):
+def accuracy(net, examples, gap, size=500):
     if not examples:
         return 0.0
     right = 0
     with torch.no_grad():
         for i in range(0, len(examples), size):
-            ids, lens, labels = batch(examples[i : i + size])
-            right += (net(ids, lens, 0).argmax(dim=1) == labels).sum().item()
+            b = Batch(examples[i : i + size], gap)
+            right += (net(b, 0).argmax(dim=1) == b.labels).sum().item()
     return right / len(examples)
+
+
+def max_norm_(w, s):
+    # Rows whose L2 norm exceeds s are scaled to norm s (convtag's trMaxNorm;
+    # torch.renorm would divide by norm + 1e-7).
+    n = w.norm(dim=1, keepdim=True)
+    w.mul_(torch.where(n > s, s / n, torch.ones_like(n)))
 
 
 def train_fold(r, fold, seed):
     torch.manual_seed(seed)
     adam = r["optimizer"] == "adam"
+    gap = max(r["widths"]) - 1
     net = Net(fold["rows"], r["dim"], r["widths"], r["filters"], r["labels"], sparse=adam)
     dense = [p for n, p in net.named_parameters() if not n.startswith("emb.")]
     if adam:
@@ -92,28 +121,28 @@ def train_fold(r, fold, seed):
         epochs += 1
         net.train()
         order = torch.randperm(len(train), generator=gen).tolist()
-        for b in range(0, len(order), r["batch"]):
-            ids, lens, labels = batch([train[i] for i in order[b : b + r["batch"]]])
+        for s in range(0, len(order), r["batch"]):
+            b = Batch([train[i] for i in order[s : s + r["batch"]]], gap)
             opt.zero_grad()
             net.emb.weight.grad = None
-            loss = F.cross_entropy(net(ids, lens, r["dropout"]), labels)
+            loss = F.cross_entropy(net(b, r["dropout"]), b.labels)
             loss.backward()
             opt.step()
             if adam:
                 emb_opt.step()
             else:
                 with torch.no_grad():
-                    rows = torch.unique(ids[ids > 0])
+                    rows = torch.unique(b.ids[b.ids > 0])
                     g = net.emb.weight.grad[rows]
-                    s = sq[rows].mul_(0.95).addcmul_(g, g, value=0.05)
-                    delta = (acc[rows] + 1e-6).sqrt_().div_((s + 1e-6).sqrt_()).mul_(g)
+                    s2 = sq[rows].mul_(0.95).addcmul_(g, g, value=0.05)
+                    delta = (acc[rows] + 1e-6).sqrt_().div_((s2 + 1e-6).sqrt_()).mul_(g)
                     acc[rows] = acc[rows].mul_(0.95).addcmul_(delta, delta, value=0.05)
-                    sq[rows] = s
+                    sq[rows] = s2
                     net.emb.weight[rows] -= r["lr"] * delta
             if r["max_norm"] > 0:
                 with torch.no_grad():
-                    net.out.weight.copy_(torch.renorm(net.out.weight, 2, 0, r["max_norm"]))
-        dev = accuracy(net, fold["dev"]) if fold["dev"] else 0.0
+                    max_norm_(net.out.weight, r["max_norm"])
+        dev = accuracy(net, fold["dev"], gap) if fold["dev"] else 0.0
         if not fold["dev"] or dev > best:
             best, best_state, since = dev, copy.deepcopy(net.state_dict()), 0
         else:
@@ -121,16 +150,46 @@ def train_fold(r, fold, seed):
         if r["patience"] > 0 and since >= r["patience"]:
             break
     net.load_state_dict(best_state)
-    return accuracy(net, fold["test"]), epochs
+    return accuracy(net, fold["test"], gap), epochs
+
+
+def padded_forward(net, examples):
+    """The contract's formula, text by text: conv1d over F.pad(x, (0, w-1)),
+    max over the n positions, ReLU. Without dropout."""
+    feats = []
+    for e in examples:
+        x = net.emb(torch.tensor(e["rows"] or [0])).t()[None]
+        f = [F.relu(conv(F.pad(x, (0, w - 1)))[0].max(dim=1).values) for w, conv in zip(net.widths, net.convs)]
+        feats.append(torch.cat(f))
+    return net.out(torch.stack(feats))
+
+
+def check_layout():
+    """Checks Batch and Net.forward against padded_forward, outputs and every
+    gradient, on random texts of lengths 0 to 9 (fails loudly, never skips)."""
+    g = torch.Generator().manual_seed(7)
+    net = Net(40, 6, [2, 3, 5], 4, 3, sparse=False)
+    ex = [{"rows": torch.randint(1, 40, (n,), generator=g).tolist(), "label": n % 3} for n in [3, 0, 9, 1, 5, 2]]
+    grads = []
+    for f in (lambda: net(Batch(ex, 4), 0), lambda: padded_forward(net, ex)):
+        net.zero_grad()
+        out = f()
+        F.cross_entropy(out, torch.tensor([e["label"] for e in ex])).backward()
+        grads.append((out.detach(), [p.grad.clone() for p in net.parameters()]))
+    (o1, g1), (o2, g2) = grads
+    assert torch.allclose(o1, o2, atol=1e-6), (o1, o2)
+    for a, b in zip(g1, g2):
+        assert torch.allclose(a, b, atol=1e-6), (a, b)
 
 
 def main():
     r = json.load(open(sys.argv[1]))
     torch.set_num_threads(r.get("threads", 2))
+    check_layout()
     accs, epochs = [], []
     start = time.perf_counter()
     for k, fold in enumerate(r["folds"]):
-        a, e = train_fold(r, fold, r["seed"] + k)
+        a, e = train_fold(r, fold, fold.get("seed", r["seed"] + k))
         accs.append(a)
         epochs.append(e)
         print(f"fold {k + 1}: accuracy {a:.4f} after {e} epochs", file=sys.stderr)

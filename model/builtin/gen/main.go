@@ -21,7 +21,7 @@ import (
 	"path/filepath"
 	"time"
 
-	"convtag/internal/uci"
+	"convtag/model/internal/uci"
 )
 
 // maxSize is the most the built-in model may weigh.
