@@ -311,7 +311,7 @@ func (t *trainer) epoch(epoch int, train []Example, order []int) EpochStats {
 			continue
 		}
 		scale := float32(1 / bw)
-		t.p.pack()
+		t.pack()
 		nw := min(len(t.ws), len(batch))
 		t.parallel(nw, func(k int) {
 			w := t.ws[k]
@@ -337,6 +337,11 @@ func (t *trainer) epoch(epoch int, train []Example, order []int) EpochStats {
 		}
 	}
 	return EpochStats{Epoch: epoch, Loss: loss / wsum, TrainAcc: float64(correct) / float64(len(train)), Tokens: tokens, Seconds: time.Since(start).Seconds()}
+}
+
+// pack refreshes the kernel layout of the weights on all workers.
+func (t *trainer) pack() {
+	t.parallel(len(t.ws), func(k int) { t.p.packPart(k, len(t.ws)) })
 }
 
 // reduce sums the first n workers' gradients into t.g, in trainWorker order for
@@ -369,7 +374,7 @@ func (t *trainer) reduce(n int) {
 // evaluate returns accuracy and macro-F1 on ex with the current weights,
 // without dropout.
 func (t *trainer) evaluate(ex []Example) (acc, macroF1 float64) {
-	t.p.pack()
+	t.pack()
 	pred := make([]int, len(ex))
 	nw := min(len(t.ws), len(ex))
 	t.parallel(nw, func(k int) {

@@ -3,6 +3,7 @@ package model
 import (
 	"encoding/json"
 	"fmt"
+	"slices"
 	"testing"
 
 	"convtag/model/internal/uci"
@@ -106,8 +107,8 @@ func BenchmarkTrainVsTorch(b *testing.B) {
 	b.ReportMetric(goSec/torchSec, "ratio")
 }
 
-// BenchmarkConvKernel is the training convolution kernel, assembly and
-// plain Go, at d = 128, width 5 (k = 640).
+// BenchmarkConvKernel is the training convolution kernel, two panels in
+// AVX-512, one in AVX2, and plain Go, at d = 128, width 5 (k = 640).
 func BenchmarkConvKernel(b *testing.B) {
 	const d, w = 128, 5
 	k := d * w
@@ -120,20 +121,27 @@ func BenchmarkConvKernel(b *testing.B) {
 	for i := range bb {
 		bb[i] = float32(i%5) * 0.1
 	}
+	bb2 := append(slices.Clone(bb), bb...)
+	c2 := make([]float32, trRows*2*trPanel)
 	for _, tc := range []struct {
-		name string
-		f    func([]float32, int, []float32, int, []float32, int)
-	}{{"asm", trConv}, {"go", trConvGo}} {
+		name   string
+		panels int
+		f      func([]float32, int, []float32, int, []float32, int)
+	}{{"asm512x2", 2, trConv2}, {"asm", 1, trConv}, {"go", 1, trConvGo}} {
 		b.Run(tc.name, func(b *testing.B) {
-			if tc.name == "asm" && !trainAVX2 {
-				b.Skip("no AVX2")
+			if tc.name == "asm" && !trainAVX2 || tc.panels == 2 && !trainAVX512 {
+				b.Skip("no AVX2 or AVX-512")
 			}
-			b.SetBytes(int64(4 * len(bb)))
+			bp, cp := bb, c
+			if tc.panels == 2 {
+				bp, cp = bb2, c2
+			}
+			b.SetBytes(int64(4 * len(bp)))
 			b.ReportAllocs()
 			for b.Loop() {
-				tc.f(a, d, bb, k, c, trPanel)
+				tc.f(a, d, bp, k, cp, tc.panels*trPanel)
 			}
-			b.ReportMetric(float64(2*trRows*trPanel*k)*float64(b.N)/b.Elapsed().Seconds()/1e9, "GFLOP/s")
+			b.ReportMetric(float64(2*trRows*tc.panels*trPanel*k)*float64(b.N)/b.Elapsed().Seconds()/1e9, "GFLOP/s")
 		})
 	}
 }

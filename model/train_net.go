@@ -76,20 +76,24 @@ func (p *netParams) denseList() [][]float32 {
 func (p *netParams) trDense() [][]float32 { return p.list }
 
 // pack refreshes the kernel layout from the working weights.
-func (p *netParams) pack() {
+func (p *netParams) pack() { p.packPart(0, 1) }
+
+// packPart does part j of n of pack's work (the panels q with q%n == j);
+// the n parts may run concurrently.
+func (p *netParams) packPart(j, n int) {
 	for i, w := range p.widths {
 		k := w * p.d
 		src, dst := p.conv[i], p.packed[i]
-		for q := 0; q < p.Fpad/trPanel; q++ {
-			for c := range trPanel {
-				f := q*trPanel + c
-				for t := range k {
-					v := float32(0)
-					if f < p.F {
-						v = src[f*k+t]
-					}
-					dst[(q*k+t)*trPanel+c] = v
+		for q := j; q < p.Fpad/trPanel; q += n {
+			// Written in order; the reads are trPanel sequential streams.
+			out := dst[q*k*trPanel : (q+1)*k*trPanel]
+			nf := min(trPanel, p.F-q*trPanel)
+			for t := range k {
+				o := out[t*trPanel : (t+1)*trPanel : (t+1)*trPanel]
+				for c := range nf {
+					o[c] = src[(q*trPanel+c)*k+t]
 				}
+				clear(o[nf:])
 			}
 		}
 	}
@@ -237,7 +241,14 @@ func (w *trainWorker) forward(p *netParams, rows []int32, dropout float64, seed,
 	w.pre = trGrow(w.pre, nb*trRows*p.Fpad)
 	for i, wd := range p.widths {
 		k := wd * d
-		for q := 0; q < p.Fpad/trPanel; q++ {
+		np, q := p.Fpad/trPanel, 0
+		for ; q+1 < np; q += 2 {
+			b := p.packed[i][q*k*trPanel : (q+2)*k*trPanel]
+			for rb := range nb {
+				trConv2(w.x[rb*trRows*d:], d, b, k, w.pre[rb*trRows*p.Fpad+q*trPanel:], p.Fpad)
+			}
+		}
+		if q < np {
 			b := p.packed[i][q*k*trPanel : (q+1)*k*trPanel]
 			for rb := range nb {
 				trConv(w.x[rb*trRows*d:], d, b, k, w.pre[rb*trRows*p.Fpad+q*trPanel:], p.Fpad)

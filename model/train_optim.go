@@ -66,13 +66,19 @@ func (s *optState) embStep(opt string, t int, lr float32, w, g, a, b []float32) 
 	}
 }
 
-func adadelta(lr float32, w, g, sq, acc []float32) {
+// adadeltaGo is the portable twin of adadelta: one Adadelta step for the
+// len(g) elements of w, with the running means sq and acc. Every product is
+// rounded to float32 by an explicit conversion, so the compiler cannot fuse
+// it into a multiply-add and the assembly twin matches bit for bit on every
+// GOAMD64 level.
+func adadeltaGo(lr float32, w, g, sq, acc []float32) {
 	const rho, eps = AdadeltaRho, AdadeltaEps
+	w, sq, acc = w[:len(g)], sq[:len(g)], acc[:len(g)]
 	for i, gi := range g {
-		sq[i] = rho*sq[i] + (1-rho)*gi*gi
-		delta := trSqrt(acc[i]+eps) / trSqrt(sq[i]+eps) * gi
-		acc[i] = rho*acc[i] + (1-rho)*delta*delta
-		w[i] -= lr * delta
+		sq[i] = float32(rho*sq[i]) + float32(float32((1-rho)*gi)*gi)
+		delta := float32(trSqrt(acc[i]+eps)/trSqrt(sq[i]+eps)) * gi
+		acc[i] = float32(rho*acc[i]) + float32(float32((1-rho)*delta)*delta)
+		w[i] -= float32(lr * delta)
 	}
 }
 
