@@ -293,11 +293,7 @@ func (t *trainer) parallel(n int, f func(k int)) {
 
 // epoch runs one pass over train in a seeded random order.
 func (t *trainer) epoch(epoch int, train []Example, order []int) EpochStats {
-	for i := range order {
-		order[i] = i
-	}
-	rng := rand.New(rand.NewPCG(t.opt.Seed, uint64(epoch)))
-	rng.Shuffle(len(order), func(i, j int) { order[i], order[j] = order[j], order[i] })
+	epochOrder(order, t.opt.Seed, epoch)
 	var loss, wsum float64
 	correct, tokens := 0, 0
 	start := time.Now()
@@ -342,6 +338,16 @@ func (t *trainer) epoch(epoch int, train []Example, order []int) EpochStats {
 // pack refreshes the kernel layout of the weights on all workers.
 func (t *trainer) pack() {
 	t.parallel(len(t.ws), func(k int) { t.p.packPart(k, len(t.ws)) })
+}
+
+// epochOrder fills order with the training examples' order in the epoch
+// (from 1) of a run with the seed.
+func epochOrder(order []int, seed uint64, epoch int) {
+	for i := range order {
+		order[i] = i
+	}
+	rng := rand.New(rand.NewPCG(seed, uint64(epoch)))
+	rng.Shuffle(len(order), func(i, j int) { order[i], order[j] = order[j], order[i] })
 }
 
 // reduce sums the first n workers' gradients into t.g, in trainWorker order for

@@ -18,6 +18,13 @@ torch.optim.Adadelta restricted to the batch's rows for Adadelta; every
 other tensor uses torch.optim.Adadelta or torch.optim.Adam. Prints JSON:
 per-fold test accuracy, epochs run, and the training wall time in seconds.
 
+For differential tests a fold may also hold "init" (the starting weights
+in convtag's tensor names and layouts, which are torch's: embedding [rows,
+d], convs.i.weight [F, d, w], convs.i.bias, output.weight, output.bias, as
+flat lists) and "orders" (per epoch, the order of the training examples),
+and the recipe "return_weights": true, which adds every fold's final
+weights under those names to the output ("weights", a list per fold).
+
 Windows: a text of n tokens (an empty text counts as one padding token)
 has exactly n windows per width w, the window at p covering tokens
 p..p+w-1 with zero rows past the end (convtag's contract: conv1d over
@@ -101,11 +108,23 @@ def max_norm_(w, s):
     w.mul_(torch.where(n > s, s / n, torch.ones_like(n)))
 
 
+def named(net):
+    """The network's tensors under convtag's names."""
+    t = {"embedding": net.emb.weight, "output.weight": net.out.weight, "output.bias": net.out.bias}
+    for i, conv in enumerate(net.convs):
+        t[f"convs.{i}.weight"], t[f"convs.{i}.bias"] = conv.weight, conv.bias
+    return t
+
+
 def train_fold(r, fold, seed):
     torch.manual_seed(seed)
     adam = r["optimizer"] == "adam"
     gap = max(r["widths"]) - 1
     net = Net(fold["rows"], r["dim"], r["widths"], r["filters"], r["labels"], sparse=adam)
+    if "init" in fold:
+        with torch.no_grad():
+            for name, t in named(net).items():
+                t.copy_(torch.tensor(fold["init"][name], dtype=torch.float32).reshape(t.shape))
     dense = [p for n, p in net.named_parameters() if not n.startswith("emb.")]
     if adam:
         opt = torch.optim.Adam(dense, lr=r["lr"])
@@ -121,6 +140,8 @@ def train_fold(r, fold, seed):
         epochs += 1
         net.train()
         order = torch.randperm(len(train), generator=gen).tolist()
+        if "orders" in fold:
+            order = fold["orders"][epoch]
         for s in range(0, len(order), r["batch"]):
             b = Batch([train[i] for i in order[s : s + r["batch"]]], gap)
             opt.zero_grad()
@@ -150,7 +171,10 @@ def train_fold(r, fold, seed):
         if r["patience"] > 0 and since >= r["patience"]:
             break
     net.load_state_dict(best_state)
-    return accuracy(net, fold["test"], gap), epochs
+    weights = None
+    if r.get("return_weights"):
+        weights = {k: v.detach().reshape(-1).tolist() for k, v in named(net).items()}
+    return accuracy(net, fold["test"], gap), epochs, weights
 
 
 def padded_forward(net, examples):
@@ -186,14 +210,18 @@ def main():
     r = json.load(open(sys.argv[1]))
     torch.set_num_threads(r.get("threads", 2))
     check_layout()
-    accs, epochs = [], []
+    accs, epochs, weights = [], [], []
     start = time.perf_counter()
     for k, fold in enumerate(r["folds"]):
-        a, e = train_fold(r, fold, fold.get("seed", r["seed"] + k))
+        a, e, w = train_fold(r, fold, fold.get("seed", r["seed"] + k))
         accs.append(a)
         epochs.append(e)
+        weights.append(w)
         print(f"fold {k + 1}: accuracy {a:.4f} after {e} epochs", file=sys.stderr)
-    json.dump({"accuracy": accs, "epochs": epochs, "seconds": time.perf_counter() - start}, sys.stdout)
+    out = {"accuracy": accs, "epochs": epochs, "seconds": time.perf_counter() - start}
+    if r.get("return_weights"):
+        out["weights"] = weights
+    json.dump(out, sys.stdout)
 
 
 if __name__ == "__main__":
