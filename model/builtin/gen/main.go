@@ -53,7 +53,13 @@ func run() error {
 		"--min-count", "3", "--buckets", "500", "--fold-half",
 		"--seed", "1", "-j", "2", "--dev-fraction", "0.1"}
 	for _, src := range uci.Sources {
-		args = append(args, uci.JSONLPath(dir, src))
+		// Relative to the module root, so that the training summary in the
+		// file names the same paths on every machine.
+		rel, err := filepath.Rel(root, uci.JSONLPath(dir, src))
+		if err != nil {
+			return err
+		}
+		args = append(args, rel)
 	}
 	cmd := exec.Command("go", args...)
 	cmd.Dir = root
