@@ -316,8 +316,12 @@ func TestRsyslogChain(t *testing.T) {
 		t.Errorf("no new convtag after the kill (pid %d)", p)
 	}
 
-	// The end: more messages, and SIGTERM for rsyslogd at once.
+	// The end: more messages, then SIGTERM for rsyslogd as soon as it has
+	// handed them all on (its omfile copy, the action after omprog, holds
+	// them). What rsyslogd still had queued at SIGTERM is its own to keep
+	// or discard; what it had written to convtag's pipe must all arrive.
 	sendAll(400)
+	c.waitFor("rsyslogd's own copy of every message", 30*time.Second, func() bool { return c.lines("raw.jsonl") >= n })
 	c.stop()
 
 	old, oldNums := c.readTagged("tagged.jsonl.1", labels)
