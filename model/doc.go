@@ -25,9 +25,9 @@ package model
 //	vocab.offsets      I64 [V+1]
 //	vocab.index        I32 [S]           open addressing, S a power of two > V
 //	vocab.bytes        U8  [n]
+//	baseline           U8  [m]           optional: the naive-Bayes baseline (package nb)
 //
 // __metadata__ (string values): format "convtag", format_version "1",
 // labels (JSON array), config (JSON Config), tokenizer (JSON
-// TokenizerSettings), training (JSON summary, from train), baseline (the
-// naive-Bayes model, from train), checksum "sha256:<hex of the buffer>",
-// created_by.
+// TokenizerSettings), training (JSON summary, from train), checksum
+// "sha256:<hex of the buffer>", created_by.

@@ -30,6 +30,7 @@ type Info struct {
 	FoldDType     string            `json:"fold_dtype,omitempty"` // "F32" or "F16" when folded
 	Tokenizer     TokenizerSettings `json:"tokenizer"`
 	Checksum      string            `json:"checksum,omitempty"`
+	BaselineBytes int               `json:"baseline_bytes,omitempty"` // size of the stored naive-Bayes baseline
 	CreatedBy     string            `json:"created_by,omitempty"`
 	// Training is the training summary decoded from its metadata string:
 	// JSON exactly as written, or nil when there is none or it is not
@@ -52,6 +53,7 @@ func (m *Model) Info() Info {
 		Buckets:       m.Config.Buckets,
 		Tokenizer:     m.Tokenizer,
 		Checksum:      m.Meta[MetaChecksum],
+		BaselineBytes: len(m.Baseline),
 		CreatedBy:     m.Meta[MetaCreatedBy],
 		Metadata:      make(map[string]string, len(m.Meta)),
 	}
@@ -121,6 +123,9 @@ func (in *Info) WriteText(w io.Writer) error {
 		line("folded", "no")
 	}
 	line("tokenizer", fmt.Sprintf("keep_punct=%t max_tokens=%d no_placeholders=%t", in.Tokenizer.KeepPunct, in.Tokenizer.Limit(), in.Tokenizer.NoPlaceholders))
+	if in.BaselineBytes > 0 {
+		line("baseline", fmt.Sprintf("naive Bayes, %d bytes", in.BaselineBytes))
+	}
 	if in.Checksum != "" {
 		line("checksum", in.Checksum)
 	}

@@ -48,6 +48,12 @@ type Model struct {
 
 	Vocab *Vocab
 
+	// Baseline is an optional opaque blob stored beside the network: the
+	// naive-Bayes baseline in package nb's encoding, written by training
+	// (tensor "baseline", U8). It is a tensor rather than metadata so that
+	// opening a file never parses it. nil when absent; aliases the file.
+	Baseline []byte
+
 	// Meta is the file's __metadata__, including the keys this package
 	// writes itself (see the Meta* constants).
 	Meta map[string]string

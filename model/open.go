@@ -19,6 +19,7 @@ const (
 	TensorVocabOffsets = "vocab.offsets"
 	TensorVocabIndex   = "vocab.index"
 	TensorVocabBytes   = "vocab.bytes"
+	TensorBaseline     = "baseline" // optional U8 blob: the naive-Bayes baseline
 	TensorHiddenW      = "hidden.weight"
 	TensorHiddenB      = "hidden.bias"
 	TensorOutputW      = "output.weight"
@@ -357,6 +358,12 @@ func (s *schema) build(m *Model) error {
 	}
 	if m.Out.B, err = s.finite32(TensorOutputB, m.Out.Out); err != nil {
 		return err
+	}
+	if t, ok := s.byName[TensorBaseline]; ok {
+		if t, err = s.get(TensorBaseline, "U8", len(t.Data)); err != nil {
+			return err
+		}
+		m.Baseline = t.Data
 	}
 	return s.buildFold(m, rows)
 }

@@ -718,3 +718,27 @@ func TestFirstNonFinite(t *testing.T) {
 		t.Errorf("finite halves: got %d", i)
 	}
 }
+
+// The baseline blob round-trips as the "baseline" U8 tensor, after the
+// vocabulary bytes, without touching the JSON header.
+func TestBaselineTensor(t *testing.T) {
+	m := stModel(t, 5, 0, "")
+	m.Baseline = []byte("nb1 opaque\x00bytes\n")
+	var buf bytes.Buffer
+	if err := m.Encode(&buf); err != nil {
+		t.Fatal(err)
+	}
+	got, err := Load(buf.Bytes(), "with-baseline")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !bytes.Equal(got.Baseline, m.Baseline) {
+		t.Fatalf("baseline %q, want %q", got.Baseline, m.Baseline)
+	}
+	if _, ok := got.Meta[TensorBaseline]; ok {
+		t.Error("baseline also in the metadata")
+	}
+	if err := got.Verify(); err != nil {
+		t.Fatal(err)
+	}
+}

@@ -116,6 +116,9 @@ func (m *Model) tensors() []Tensor {
 		}
 	}
 	add(TensorVocabBytes, "U8", v.blob, len(v.blob))
+	if len(m.Baseline) > 0 {
+		add(TensorBaseline, "U8", m.Baseline, len(m.Baseline))
+	}
 	return ts
 }
 

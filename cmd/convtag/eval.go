@@ -390,12 +390,12 @@ func (f *evalFlags) baseline(a *app, m *model.Model) (*nb.Model, string, error) 
 		}
 		return b, "fitted on " + strings.Join(files, ", "), nil
 	}
-	enc, ok := m.Meta["baseline"]
-	if !ok {
+	enc := m.Baseline
+	if len(enc) == 0 {
 		fmt.Fprintf(a.stderr, "convtag: the model file holds no baseline; --baseline-train FILE fits one\n")
 		return nil, "", nil
 	}
-	b, err := nb.Decode([]byte(enc))
+	b, err := nb.Decode(enc)
 	if err != nil {
 		return nil, "", withCode(exitUsage, fmt.Errorf("eval: stored baseline: %w", err))
 	}

@@ -27,7 +27,7 @@ import (
 func init() { commands = append(commands, newTrainCmd) }
 
 // maxBaselineMeta caps the size of the naive-Bayes counts stored in the
-// model file's metadata (key "baseline"); a larger baseline is left out
+// model file (tensor "baseline", model.Model.Baseline); a larger one is left out
 // and only its figures are kept in the training summary.
 const maxBaselineMeta = 4 << 20
 
@@ -170,7 +170,7 @@ type scores struct {
 type baselineScores struct {
 	Kind string `json:"kind"`
 	scores
-	Stored bool `json:"stored"` // counts kept under the "baseline" metadata key
+	Stored bool `json:"stored"` // counts kept in the model file's "baseline" tensor
 }
 
 // tokenized is one record cut into tokens, with its first label.
@@ -385,7 +385,7 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 		bs.DevAccuracy, bs.DevMacroF1 = model.Accuracy(gold, pred), model.MacroF1(gold, pred, len(labels))
 	}
 	if enc := base.Encode(); len(enc) <= maxBaselineMeta {
-		m.Meta["baseline"] = string(enc)
+		m.Baseline = enc
 		bs.Stored = true
 	}
 

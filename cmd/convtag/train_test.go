@@ -57,7 +57,7 @@ func TestTrainDemo(t *testing.T) {
 	}
 	if !sum.Baseline.Stored {
 		t.Error("baseline not stored")
-	} else if b, err := nb.Decode([]byte(m.Meta["baseline"])); err != nil || b.Labels() != 5 {
+	} else if b, err := nb.Decode(m.Baseline); err != nil || b.Labels() != 5 {
 		t.Errorf("stored baseline: %v", err)
 	}
 	// The network in the file is the one trained: its dev accuracy
