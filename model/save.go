@@ -10,7 +10,6 @@ import (
 	"hash"
 	"io"
 	"maps"
-	"math"
 	"os"
 	"path/filepath"
 	"strconv"
@@ -89,30 +88,30 @@ func (m *Model) tensors() []Tensor {
 		ts = append(ts, Tensor{Name: name, DType: dtype, Shape: shape, Data: data})
 	}
 	v := m.Vocab
-	add(TensorVocabOffsets, "I64", bytesI64(v.offs), len(v.offs))
-	add(TensorEmbedding, "F32", bytesF32(m.Emb), len(m.Emb)/max(d, 1), d)
+	add(TensorVocabOffsets, "I64", rawBytes(v.offs), len(v.offs))
+	add(TensorEmbedding, "F32", rawBytes(m.Emb), len(m.Emb)/max(d, 1), d)
 	for i, c := range m.Convs {
-		add(ConvWeightName(i), "F32", bytesF32(c.W), f, d, c.Width)
-		add(ConvBiasName(i), "F32", bytesF32(c.B), len(c.B))
+		add(ConvWeightName(i), "F32", rawBytes(c.W), f, d, c.Width)
+		add(ConvBiasName(i), "F32", rawBytes(c.B), len(c.B))
 	}
 	if h := m.Hidden; h != nil {
-		add(TensorHiddenW, "F32", bytesF32(h.W), h.Out, h.In)
-		add(TensorHiddenB, "F32", bytesF32(h.B), len(h.B))
+		add(TensorHiddenW, "F32", rawBytes(h.W), h.Out, h.In)
+		add(TensorHiddenB, "F32", rawBytes(h.B), len(h.B))
 	}
-	add(TensorOutputW, "F32", bytesF32(m.Out.W), m.Out.Out, m.Out.In)
-	add(TensorOutputB, "F32", bytesF32(m.Out.B), len(m.Out.B))
+	add(TensorOutputW, "F32", rawBytes(m.Out.W), m.Out.Out, m.Out.In)
+	add(TensorOutputB, "F32", rawBytes(m.Out.B), len(m.Out.B))
 	foldShape := func(ft FoldTable, n int) []int {
 		return []int{n / max(ft.Width*f, 1), ft.Width, f}
 	}
 	for i, ft := range m.Fold {
 		if ft.F16 == nil {
-			add(FoldName(i), "F32", bytesF32(ft.F32), foldShape(ft, len(ft.F32))...)
+			add(FoldName(i), "F32", rawBytes(ft.F32), foldShape(ft, len(ft.F32))...)
 		}
 	}
-	add(TensorVocabIndex, "I32", bytesI32(v.index), len(v.index))
+	add(TensorVocabIndex, "I32", rawBytes(v.index), len(v.index))
 	for i, ft := range m.Fold {
 		if ft.F16 != nil {
-			add(FoldName(i), "F16", bytesU16(ft.F16), foldShape(ft, len(ft.F16))...)
+			add(FoldName(i), "F16", rawBytes(ft.F16), foldShape(ft, len(ft.F16))...)
 		}
 	}
 	add(TensorVocabBytes, "U8", v.blob, len(v.blob))
@@ -280,61 +279,15 @@ func (m *Model) checkLarge() error {
 	return nil
 }
 
-// The bytes* functions give a slice's little-endian bytes: a view on a
-// little-endian host, a converted copy otherwise.
-
-func bytesF32(v []float32) []byte {
+// rawBytes gives a slice's little-endian bytes: a view on a little-endian
+// host, a converted copy otherwise.
+func rawBytes[T float32 | int32 | int64 | uint16](v []T) []byte {
 	if len(v) == 0 {
 		return []byte{}
 	}
 	if littleEndian {
-		return unsafe.Slice((*byte)(unsafe.Pointer(&v[0])), 4*len(v))
+		return unsafe.Slice((*byte)(unsafe.Pointer(&v[0])), len(v)*int(unsafe.Sizeof(v[0])))
 	}
-	b := make([]byte, 4*len(v))
-	for i, x := range v {
-		binary.LittleEndian.PutUint32(b[4*i:], math.Float32bits(x))
-	}
-	return b
-}
-
-func bytesI32(v []int32) []byte {
-	if len(v) == 0 {
-		return []byte{}
-	}
-	if littleEndian {
-		return unsafe.Slice((*byte)(unsafe.Pointer(&v[0])), 4*len(v))
-	}
-	b := make([]byte, 4*len(v))
-	for i, x := range v {
-		binary.LittleEndian.PutUint32(b[4*i:], uint32(x))
-	}
-	return b
-}
-
-func bytesI64(v []int64) []byte {
-	if len(v) == 0 {
-		return []byte{}
-	}
-	if littleEndian {
-		return unsafe.Slice((*byte)(unsafe.Pointer(&v[0])), 8*len(v))
-	}
-	b := make([]byte, 8*len(v))
-	for i, x := range v {
-		binary.LittleEndian.PutUint64(b[8*i:], uint64(x))
-	}
-	return b
-}
-
-func bytesU16(v []uint16) []byte {
-	if len(v) == 0 {
-		return []byte{}
-	}
-	if littleEndian {
-		return unsafe.Slice((*byte)(unsafe.Pointer(&v[0])), 2*len(v))
-	}
-	b := make([]byte, 2*len(v))
-	for i, x := range v {
-		binary.LittleEndian.PutUint16(b[2*i:], x)
-	}
+	b, _ := binary.Append(nil, binary.LittleEndian, v) // fixed-size elements: cannot fail
 	return b
 }
