@@ -99,7 +99,7 @@ figures. Records with several labels are scored on the first.
 // addFoldTrainFlags adds the training flags --folds uses, with train's
 // names and defaults.
 func addFoldTrainFlags(fl *pflag.FlagSet, t *trainFlags) {
-	fl.Float64Var(&t.devFraction, "dev-fraction", 0.1, "with --folds: share of each training part held out for early stopping")
+	fl.Float64Var(&t.devFraction, "dev-fraction", defaultDevFraction, "with --folds: share of each training part held out for early stopping")
 	fl.IntVar(&t.dim, "dim", model.DefaultDim, "with --folds: embedding size")
 	fl.IntSliceVar(&t.widths, "widths", model.DefaultWidths, "with --folds: convolution window widths")
 	fl.IntVar(&t.filters, "filters", model.DefaultFilters, "with --folds: filters per width")
@@ -107,14 +107,14 @@ func addFoldTrainFlags(fl *pflag.FlagSet, t *trainFlags) {
 	fl.IntVar(&t.epochs, "epochs", model.DefaultEpochs, "with --folds: most epochs")
 	fl.IntVar(&t.patience, "patience", model.DefaultPatience, "with --folds: epochs without a better dev accuracy before stopping; 0 never")
 	fl.IntVar(&t.batch, "batch", model.DefaultBatch, "with --folds: mini-batch size")
-	fl.Uint64Var(&t.seed, "seed", 1, "with --folds: seed for the folds, initialisation, splits, shuffling and dropout")
+	fl.Uint64Var(&t.seed, "seed", defaultSeed, "with --folds: seed for the folds, initialisation, splits, shuffling and dropout")
 	fl.IntVarP(&t.jobs, "jobs", "j", 0, "with --folds: training threads (default: all cores)")
 	fl.StringVar(&t.optimizer, "optimizer", model.OptAdadelta, "with --folds: adadelta or adam")
 	fl.Float64Var(&t.lr, "learning-rate", 0, "with --folds: learning rate (default: 1 for adadelta, 0.001 for adam)")
-	fl.IntVar(&t.minCount, "min-count", 1, "with --folds: words seen fewer times share the hash buckets")
+	fl.IntVar(&t.minCount, "min-count", defaultMinCount, "with --folds: words seen fewer times share the hash buckets")
 	fl.IntVar(&t.maxWords, "max-words", 0, "with --folds: keep at most this many words; 0 for all")
 	fl.IntVar(&t.buckets, "buckets", model.DefaultBuckets, "with --folds: shared rows for words outside the vocabulary")
-	fl.StringVar(&t.classWeights, "class-weights", "none", "with --folds: none or balanced")
+	fl.StringVar(&t.classWeights, "class-weights", defaultClassWeights, "with --folds: none or balanced")
 }
 
 func (f *evalFlags) check(cmd *cobra.Command, args []string) error {

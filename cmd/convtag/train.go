@@ -31,6 +31,16 @@ func init() { commands = append(commands, newTrainCmd) }
 // and only its figures are kept in the training summary.
 const maxBaselineMeta = 4 << 20
 
+// Defaults of the training recipe that are the command's own (the rest are
+// model's constants). train and eval --folds both use them, so that a
+// cross-validated recipe is the one train would run.
+const (
+	defaultDevFraction  = 0.1
+	defaultSeed         = 1
+	defaultMinCount     = 1 // every word seen in training gets its own row
+	defaultClassWeights = "none"
+)
+
 // trainFlags are the train command's settings.
 type trainFlags struct {
 	output, format, labelKey, dev, vectors, classWeights, optimizer string
@@ -88,7 +98,7 @@ The same data, flags, --seed and --jobs give a byte-identical model file.
 	fl.StringVar(&f.labelKey, "label-key", "label", "dotted path of the label (a string or an array of strings)")
 	fl.StringVar(&f.format, "format", stream.LabelledJSONL, "input format: jsonl or tsv (label<TAB>text)")
 	fl.StringVar(&f.dev, "dev", "", "held-out records for early stopping and the reported accuracy, instead of --dev-fraction")
-	fl.Float64Var(&f.devFraction, "dev-fraction", 0.1, "share of each tag's records held out when there is no --dev")
+	fl.Float64Var(&f.devFraction, "dev-fraction", defaultDevFraction, "share of each tag's records held out when there is no --dev")
 	fl.IntVar(&f.dim, "dim", model.DefaultDim, "embedding size (default: the --vectors file's, else 128)")
 	fl.IntSliceVar(&f.widths, "widths", model.DefaultWidths, "convolution window widths, in words")
 	fl.IntVar(&f.filters, "filters", model.DefaultFilters, "filters per width")
@@ -96,16 +106,16 @@ The same data, flags, --seed and --jobs give a byte-identical model file.
 	fl.IntVar(&f.epochs, "epochs", model.DefaultEpochs, "most epochs")
 	fl.IntVar(&f.patience, "patience", model.DefaultPatience, "stop after this many epochs without a better dev accuracy; 0 never stops early")
 	fl.IntVar(&f.batch, "batch", model.DefaultBatch, "mini-batch size")
-	fl.Uint64Var(&f.seed, "seed", 1, "seed for initialisation, the dev split, shuffling and dropout")
+	fl.Uint64Var(&f.seed, "seed", defaultSeed, "seed for initialisation, the dev split, shuffling and dropout")
 	fl.IntVarP(&f.jobs, "jobs", "j", 0, "worker threads (default: all cores); the model depends on it")
 	fl.StringVar(&f.optimizer, "optimizer", model.OptAdadelta, "adadelta or adam")
 	fl.Float64Var(&f.lr, "learning-rate", 0, "learning rate (default: 1 for adadelta, 0.001 for adam)")
-	fl.IntVar(&f.minCount, "min-count", 1, "words seen fewer times share the hash buckets instead of a row of their own")
+	fl.IntVar(&f.minCount, "min-count", defaultMinCount, "words seen fewer times share the hash buckets instead of a row of their own")
 	fl.IntVar(&f.maxWords, "max-words", 0, "keep at most this many words, most frequent first; 0 for all")
 	fl.IntVar(&f.buckets, "buckets", model.DefaultBuckets, "shared rows for words outside the vocabulary")
 	fl.StringVar(&f.vectors, "vectors", "", "initial word vectors (text or binary word-vector format)")
 	fl.BoolVar(&f.freeze, "freeze-vectors", false, "keep the rows taken from --vectors fixed")
-	fl.StringVar(&f.classWeights, "class-weights", "none", "none, or balanced to weight each tag's loss by n/(tags*n_tag)")
+	fl.StringVar(&f.classWeights, "class-weights", defaultClassWeights, "none, or balanced to weight each tag's loss by n/(tags*n_tag)")
 	fl.BoolVar(&f.noFold, "no-fold", false, "do not write the folded table (smaller file, slower tagging)")
 	fl.BoolVar(&f.foldHalf, "fold-half", false, "store the folded table in half precision (half the size)")
 	fl.BoolVarP(&f.quiet, "quiet", "q", false, "no progress on stderr")
