@@ -4,6 +4,9 @@ import (
 	"bytes"
 	"strings"
 	"testing"
+
+	"github.com/spf13/cobra"
+	"github.com/spf13/pflag"
 )
 
 // runCmd drives the whole program in memory, as a shell would.
@@ -73,5 +76,30 @@ func TestDefaultToTag(t *testing.T) {
 		if got := strings.Join(defaultToTag(root, args), " "); got != tc.want {
 			t.Errorf("defaultToTag(%q) = %q, want %q", tc.in, got, tc.want)
 		}
+	}
+}
+
+// eval --folds cross-validates the recipe train would run: every training
+// flag it takes has train's name and default.
+func TestFoldFlagsMatchTrain(t *testing.T) {
+	cmds := map[string]*cobra.Command{}
+	for _, c := range newRoot(&app{}).Commands() {
+		cmds[c.Name()] = c
+	}
+	n := 0
+	cmds["eval"].Flags().VisitAll(func(f *pflag.Flag) {
+		if !strings.HasPrefix(f.Usage, "with --folds:") {
+			return
+		}
+		n++
+		tf := cmds["train"].Flags().Lookup(f.Name)
+		if tf == nil {
+			t.Errorf("eval --%s: train has no such flag", f.Name)
+		} else if tf.DefValue != f.DefValue {
+			t.Errorf("--%s: eval default %q, train default %q", f.Name, f.DefValue, tf.DefValue)
+		}
+	})
+	if n < 10 {
+		t.Fatalf("only %d training flags on eval", n)
 	}
 }
