@@ -419,11 +419,13 @@ func summaryBaselineAcc(summary string) float64 {
 	return s.Baseline.DevAccuracy
 }
 
-// table lays out rows of cells in columns: the first left-aligned, the
-// rest right-aligned, two spaces apart.
+// table lays out rows of cells in columns, two spaces apart: the first
+// left-aligned and the rest right-aligned, or every one left-aligned when
+// left is set.
 type table struct {
 	rows   [][]string
 	indent string
+	left   bool
 }
 
 func (t *table) add(cells ...string) { t.rows = append(t.rows, cells) }
@@ -445,6 +447,8 @@ func (t *table) write(b *strings.Builder) {
 			switch {
 			case i == 0:
 				line += c + pad
+			case t.left:
+				line += "  " + c + pad
 			default:
 				line += "  " + pad + c
 			}

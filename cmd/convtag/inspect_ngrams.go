@@ -85,7 +85,7 @@ func (r *sampleReport) writeText(w io.Writer) error {
 		t.write(&b)
 	}
 	b.WriteString("\nstrongest windows per filter (activation after ReLU)\n")
-	t := table{indent: "  "}
+	t := table{indent: "  ", left: true}
 	for _, f := range r.Filters {
 		var ws []string
 		for _, x := range f.Windows {
@@ -96,31 +96,7 @@ func (r *sampleReport) writeText(w io.Writer) error {
 		}
 		t.add(fmt.Sprintf("width %d filter %d", f.Width, f.Filter), strings.Join(ws, ", "))
 	}
-	t.writeLeft(&b)
+	t.write(&b)
 	_, err := io.WriteString(w, b.String())
 	return err
-}
-
-// writeLeft is write with every column left-aligned.
-func (t *table) writeLeft(b *strings.Builder) {
-	var w []int
-	for _, r := range t.rows {
-		for i, c := range r {
-			if i >= len(w) {
-				w = append(w, 0)
-			}
-			w[i] = max(w[i], len([]rune(c)))
-		}
-	}
-	for _, r := range t.rows {
-		line := t.indent
-		for i, c := range r {
-			if i > 0 {
-				line += "  "
-			}
-			line += c + strings.Repeat(" ", w[i]-len([]rune(c)))
-		}
-		b.WriteString(strings.TrimRight(line, " "))
-		b.WriteByte('\n')
-	}
 }
