@@ -61,7 +61,7 @@ func (c Config) Validate() error {
 	case c.Dim < 1 || c.Dim > 4096:
 		return fmt.Errorf("dim %d out of range 1..4096", c.Dim)
 	case len(c.Widths) == 0 || len(c.Widths) > 16:
-		return fmt.Errorf("need 1..16 window widths, have %d", len(c.Widths))
+		return fmt.Errorf("widths: need 1..16 window widths, have %d", len(c.Widths))
 	case c.Filters < 1 || c.Filters > 4096:
 		return fmt.Errorf("filters %d out of range 1..4096", c.Filters)
 	case c.Hidden < 0 || c.Hidden > 4096:
@@ -71,7 +71,7 @@ func (c Config) Validate() error {
 	}
 	for _, w := range c.Widths {
 		if w < 1 || w > 16 {
-			return fmt.Errorf("window width %d out of range 1..16", w)
+			return fmt.Errorf("widths: %d out of range 1..16", w)
 		}
 	}
 	return nil
@@ -88,6 +88,19 @@ type TokenizerSettings struct {
 	// NoPlaceholders keeps URLs, e-mail addresses, handles and numbers as
 	// ordinary tokens instead of replacing them by placeholders.
 	NoPlaceholders bool `json:"no_placeholders"`
+}
+
+// MaxTokensLimit is the largest max_tokens a model file may set: a
+// predictor sizes its buffers from it, so a file must not be able to ask
+// for more memory than a record of that many tokens needs.
+const MaxTokensLimit = 1 << 20
+
+// Validate reports the first setting out of range, naming its key.
+func (s TokenizerSettings) Validate() error {
+	if s.MaxTokens < 0 || s.MaxTokens > MaxTokensLimit {
+		return fmt.Errorf("max_tokens %d out of range 0..%d", s.MaxTokens, MaxTokensLimit)
+	}
+	return nil
 }
 
 // Limit is the effective token cap.

@@ -177,8 +177,8 @@ func assemble(meta map[string]string, tensors []Tensor) (*Model, error) {
 	if err := decodeMeta(meta, MetaTokenizer, &m.Tokenizer); err != nil {
 		return nil, err
 	}
-	if m.Tokenizer.MaxTokens < 0 {
-		return nil, fmt.Errorf("%w: tokenizer: max_tokens %d is negative", ErrMetadata, m.Tokenizer.MaxTokens)
+	if err := m.Tokenizer.Validate(); err != nil {
+		return nil, fmt.Errorf("%w: tokenizer: %v", ErrMetadata, err)
 	}
 	if err := decodeMeta(meta, MetaLabels, &m.Labels); err != nil {
 		return nil, err

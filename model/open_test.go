@@ -293,6 +293,15 @@ func TestLoadRejects(t *testing.T) {
 		{name: "config invalid", edit: setMeta(MetaConfig, `{"dim":0,"widths":[2,3],"filters":4,"buckets":5}`), err: ErrMetadata, detail: "dim"},
 		{name: "no tokenizer", edit: func(meta map[string]string, ts []Tensor) []Tensor { delete(meta, MetaTokenizer); return ts }, err: ErrMetadata},
 		{name: "negative max tokens", edit: setMeta(MetaTokenizer, `{"max_tokens":-1}`), err: ErrMetadata},
+		// A cap the predictor would size a buffer from: 2^62 used to open and
+		// then panic (makeslice) at the first prediction.
+		{name: "max tokens 2^62", edit: setMeta(MetaTokenizer, `{"max_tokens":4611686018427387904}`), err: ErrMetadata, detail: "max_tokens 4611686018427387904 out of range 0..1048576"},
+		{name: "max tokens one above the cap", edit: setMeta(MetaTokenizer, `{"max_tokens":1048577}`), err: ErrMetadata, detail: "max_tokens"},
+		{name: "dim 2^40", edit: setMeta(MetaConfig, `{"dim":1099511627776,"widths":[2,3],"filters":4,"buckets":5}`), err: ErrMetadata, detail: "dim 1099511627776 out of range"},
+		{name: "filters 2^40", edit: setMeta(MetaConfig, `{"dim":6,"widths":[2,3],"filters":1099511627776,"buckets":5}`), err: ErrMetadata, detail: "filters 1099511627776 out of range"},
+		{name: "hidden 2^40", edit: setMeta(MetaConfig, `{"dim":6,"widths":[2,3],"filters":4,"hidden":1099511627776,"buckets":5}`), err: ErrMetadata, detail: "hidden 1099511627776 out of range"},
+		{name: "buckets 2^40", edit: setMeta(MetaConfig, `{"dim":6,"widths":[2,3],"filters":4,"buckets":1099511627776}`), err: ErrMetadata, detail: "buckets 1099511627776 out of range"},
+		{name: "width 2^40", edit: setMeta(MetaConfig, `{"dim":6,"widths":[2,1099511627776],"filters":4,"buckets":5}`), err: ErrMetadata, detail: "widths: 1099511627776 out of range"},
 		{name: "one label", edit: setMeta(MetaLabels, `["pier"]`), err: ErrMetadata},
 		{name: "labels not strings", edit: setMeta(MetaLabels, `[1,2,3]`), err: ErrMetadata},
 		{name: "duplicate label", edit: setMeta(MetaLabels, `["pier","tide","pier"]`), err: ErrMetadata},
