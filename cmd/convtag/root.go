@@ -95,8 +95,21 @@ runs on the CPU. With no command it runs "convtag tag".
 	root.SetOut(a.stdout)
 	root.SetErr(a.stderr)
 	root.SetVersionTemplate("convtag {{.Version}}\n")
+	root.SetFlagErrorFunc(func(c *cobra.Command, err error) error {
+		return usageErr("convtag "+c.Name()+" --help", "%v", err)
+	})
 	for _, c := range commands {
-		root.AddCommand(c(a))
+		sub := c(a)
+		if sub.Args != nil {
+			check := sub.Args
+			sub.Args = func(c *cobra.Command, args []string) error {
+				if err := check(c, args); err != nil {
+					return usageErr("convtag "+c.Name()+" --help", "%v", err)
+				}
+				return nil
+			}
+		}
+		root.AddCommand(sub)
 	}
 	return root
 }
@@ -112,8 +125,11 @@ func run(args []string, stdin io.Reader, stdout, stderr io.Writer) int {
 	}
 	a := &app{stdin: stdin, stdout: stdout, stderr: stderr}
 	root := newRoot(a)
-	root.SetArgs(defaultToTag(root, args))
-	err := root.Execute()
+	args, err := defaultToTag(root, args)
+	if err == nil {
+		root.SetArgs(args)
+		err = root.Execute()
+	}
 	if err == nil {
 		return exitOK
 	}
@@ -125,37 +141,86 @@ func run(args []string, stdin io.Reader, stdout, stderr io.Writer) int {
 		}
 		return ee.code
 	}
-	// cobra's own errors (unknown flag, bad argument count) are usage errors.
-	if strings.Contains(err.Error(), "flag") || strings.Contains(err.Error(), "arg") || strings.Contains(err.Error(), "unknown command") {
-		fmt.Fprintf(stderr, "try: convtag %s --help\n", commandName(root, args))
-		return exitUsage
-	}
 	return exitFailure
 }
 
 // defaultToTag makes "convtag [flags] [FILE...]" mean "convtag tag ...".
-func defaultToTag(root *cobra.Command, args []string) []string {
+// A first word that is no existing file but looks like a mistyped command
+// ("trian") is a usage error, not an input name: taken as tag's input, it
+// would have tag write over the -o file the user meant for another command.
+func defaultToTag(root *cobra.Command, args []string) ([]string, error) {
 	if len(args) == 0 {
-		return []string{"tag"}
+		return []string{"tag"}, nil
 	}
 	first := args[0]
 	switch first {
 	case "-h", "--help", "--version", "-v", "help", "completion", "__complete", "__completeNoDesc":
-		return args
+		return args, nil
 	}
 	for _, c := range root.Commands() {
 		if c.Name() == first || slices.Contains(c.Aliases, first) {
-			return args
+			return args, nil
 		}
 	}
-	return append([]string{"tag"}, args...)
+	if guess := likelyCommand(root, first); guess != "" {
+		return nil, usageErr("convtag "+guess+" --help", "unknown command %q (no file of that name either); did you mean %s?", first, guess)
+	}
+	return append([]string{"tag"}, args...), nil
 }
 
-func commandName(root *cobra.Command, args []string) string {
-	if c, _, err := root.Find(defaultToTag(root, args)); err == nil && c != root {
-		return c.Name()
+// likelyCommand returns the command that word is probably a typing slip
+// for, or "" when word names an existing file, starts with '-' or '.', or
+// is not close to any command name.
+func likelyCommand(root *cobra.Command, word string) string {
+	if word == "" || word == "-" || strings.ContainsAny(word[:1], "-./") || strings.ContainsRune(word, '/') {
+		return ""
 	}
-	return ""
+	if _, err := os.Lstat(word); err == nil {
+		return ""
+	}
+	best, bestDist := "", 3
+	for _, c := range root.Commands() {
+		if !c.IsAvailableCommand() && c.Name() != "help" {
+			continue
+		}
+		name := c.Name()
+		d := editDistance(strings.ToLower(word), name)
+		limit := 2
+		if len(name) <= 4 {
+			limit = 1
+		}
+		if d <= limit && d < bestDist {
+			best, bestDist = name, d
+		}
+	}
+	return best
+}
+
+// editDistance is the Damerau–Levenshtein distance (optimal string
+// alignment: insertions, deletions, substitutions and swaps of two
+// neighbouring letters each cost 1) between a and b, byte-wise.
+func editDistance(a, b string) int {
+	prev2 := make([]int, len(b)+1)
+	prev := make([]int, len(b)+1)
+	cur := make([]int, len(b)+1)
+	for j := range prev {
+		prev[j] = j
+	}
+	for i := 1; i <= len(a); i++ {
+		cur[0] = i
+		for j := 1; j <= len(b); j++ {
+			cost := 1
+			if a[i-1] == b[j-1] {
+				cost = 0
+			}
+			cur[j] = min(prev[j]+1, cur[j-1]+1, prev[j-1]+cost)
+			if i > 1 && j > 1 && a[i-1] == b[j-2] && a[i-2] == b[j-1] {
+				cur[j] = min(cur[j], prev2[j-2]+1)
+			}
+		}
+		prev2, prev, cur = prev, cur, prev2
+	}
+	return prev[len(b)]
 }
 
 func oneLine(s string) string { return strings.ReplaceAll(strings.TrimSpace(s), "\n", "; ") }

@@ -2,6 +2,8 @@ package main
 
 import (
 	"bytes"
+	"os"
+	"path/filepath"
 	"strings"
 	"testing"
 
@@ -73,8 +75,48 @@ func TestDefaultToTag(t *testing.T) {
 		if tc.in != "" {
 			args = strings.Fields(tc.in)
 		}
-		if got := strings.Join(defaultToTag(root, args), " "); got != tc.want {
-			t.Errorf("defaultToTag(%q) = %q, want %q", tc.in, got, tc.want)
+		got, err := defaultToTag(root, args)
+		if err != nil || strings.Join(got, " ") != tc.want {
+			t.Errorf("defaultToTag(%q) = %q, %v, want %q", tc.in, got, err, tc.want)
+		}
+	}
+}
+
+// A mistyped command must not be taken as tag's input file: tag would then
+// truncate the -o file the user meant for the other command.
+func TestMistypedCommandKeepsOutput(t *testing.T) {
+	dir := t.TempDir()
+	keep := filepath.Join(dir, "keep.safetensors")
+	if err := os.WriteFile(keep, []byte("precious"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	t.Chdir(dir)
+	for _, word := range []string{"trian", "tarin", "evl", "inspcet", "embd"} {
+		var stdout, stderr strings.Builder
+		code := run([]string{word, "-o", keep, "train.jsonl"}, strings.NewReader(""), &stdout, &stderr)
+		if code != exitUsage || !strings.Contains(stderr.String(), "did you mean") || !strings.Contains(stderr.String(), "try:") {
+			t.Errorf("%s: exit %d, stderr %q; want exit %d with a suggestion", word, code, stderr.String(), exitUsage)
+		}
+		if b, _ := os.ReadFile(keep); string(b) != "precious" {
+			t.Fatalf("%s: the -o file was changed to %q", word, b)
+		}
+	}
+	// A file that exists under a command-like name is still an input.
+	if err := os.WriteFile("trian", []byte("hello there\n"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if got, err := defaultToTag(newRoot(&app{}), []string{"trian"}); err != nil || strings.Join(got, " ") != "tag trian" {
+		t.Errorf("existing file trian: %q, %v", got, err)
+	}
+}
+
+// Usage mistakes found by cobra carry their exit code as a type (no guess
+// from the message's words).
+func TestFlagErrorsAreUsage(t *testing.T) {
+	for _, args := range [][]string{{"tag", "--no-such-flag"}, {"inspect", "a", "b"}, {"tag", "-j", "x"}} {
+		var stdout, stderr strings.Builder
+		if code := run(args, strings.NewReader(""), &stdout, &stderr); code != exitUsage || !strings.Contains(stderr.String(), "try:") {
+			t.Errorf("%q: exit %d, stderr %q", args, code, stderr.String())
 		}
 	}
 }
