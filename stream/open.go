@@ -14,13 +14,125 @@ import (
 )
 
 // Compression kinds, sniffed from an input's first bytes (never from its
-// name): gzip (RFC 1952) starts with 1f 8b, zstd (RFC 8878) with the frame
-// magic 28 b5 2f fd, bzip2 with "BZh".
+// name). A magic alone is not enough, since a text line may begin with the
+// same bytes; the header bytes after it must fit too:
+//   - gzip (RFC 1952 section 2.3.1): 1f 8b, compression method 8 (deflate),
+//     then a flags byte whose reserved bits 5-7 are zero;
+//   - zstd (RFC 8878 sections 3.1.1 and 3.1.2): the frame magic 28 b5 2f fd,
+//     or a skippable frame's magic 0x184D2A50..0x184D2A5F (little-endian:
+//     5? 2a 4d 18), which is how a file written in parallel begins;
+//   - bzip2: "BZh", a block-size digit '1'..'9', then the 48-bit magic of
+//     a compressed block (31 41 59 26 53 59) or of the end of the stream
+//     (17 72 45 38 50 90, an empty input).
 var (
-	magicGzip  = []byte{0x1f, 0x8b}
-	magicZstd  = []byte{0x28, 0xb5, 0x2f, 0xfd}
-	magicBzip2 = []byte("BZh")
+	magicZstd      = []byte{0x28, 0xb5, 0x2f, 0xfd}
+	magicBzipBlock = []byte{0x31, 0x41, 0x59, 0x26, 0x53, 0x59}
+	magicBzipEnd   = []byte{0x17, 0x72, 0x45, 0x38, 0x50, 0x90}
+	bom            = []byte{0xef, 0xbb, 0xbf}
 )
+
+// sniff returns the compression br's bytes start with, or "" for plain
+// bytes. It asks for more bytes only while they could still be a header,
+// so a plain line on an idle pipe is not held back waiting for more.
+func sniff(br *bufio.Reader) string {
+	head, _ := br.Peek(1)
+	if len(head) == 0 {
+		return ""
+	}
+	switch head[0] {
+	case 0x1f:
+		h, _ := br.Peek(4)
+		if len(h) == 4 && h[1] == 0x8b && h[2] == 8 && h[3]&0xe0 == 0 {
+			return "gzip"
+		}
+	case 0x28:
+		if h, _ := br.Peek(4); bytes.Equal(h, magicZstd) {
+			return "zstd"
+		}
+	case 'B':
+		h, _ := br.Peek(3)
+		if string(h) != "BZh" {
+			return ""
+		}
+		h, _ = br.Peek(10)
+		if len(h) == 10 && h[3] >= '1' && h[3] <= '9' &&
+			(bytes.Equal(h[4:], magicBzipBlock) || bytes.Equal(h[4:], magicBzipEnd)) {
+			return "bzip2"
+		}
+	default:
+		if head[0]&0xf0 == 0x50 {
+			if h, _ := br.Peek(4); len(h) == 4 && h[1] == 0x2a && h[2] == 0x4d && h[3] == 0x18 {
+				return "zstd"
+			}
+		}
+	}
+	return ""
+}
+
+// skipBOM returns r without a UTF-8 byte-order mark at its start.
+func skipBOM(r io.Reader) io.Reader {
+	br, ok := r.(*bufio.Reader)
+	if !ok {
+		br = bufio.NewReaderSize(r, 64<<10)
+	}
+	if h, _ := br.Peek(1); len(h) == 1 && h[0] == bom[0] {
+		if h, _ := br.Peek(3); bytes.Equal(h, bom) {
+			br.Discard(3)
+		}
+	}
+	return br
+}
+
+// gzipMembers reads the gzip members of a file one after another. After the
+// last one, bytes that are all zero (the padding some tape and block-device
+// tools add, which gzip itself ignores) are the end of the input; any other
+// trailing bytes are an error.
+type gzipMembers struct {
+	zr   *gzip.Reader
+	br   *bufio.Reader
+	done bool
+}
+
+var errGzipTrailing = errors.New("bytes after the last gzip member are not a gzip member")
+
+func (g *gzipMembers) Read(p []byte) (int, error) {
+	if g.done {
+		return 0, io.EOF
+	}
+	for {
+		n, err := g.zr.Read(p)
+		if err != io.EOF {
+			return n, err
+		}
+		if n > 0 {
+			return n, nil // the next Read sees the member's end again
+		}
+		h, _ := g.br.Peek(1)
+		switch {
+		case len(h) == 0:
+			g.done = true
+			return 0, io.EOF
+		case h[0] == 0:
+			for {
+				c, err := g.br.ReadByte()
+				if err == io.EOF {
+					g.done = true
+					return 0, io.EOF
+				}
+				if err != nil {
+					return 0, err
+				}
+				if c != 0 {
+					return 0, errGzipTrailing
+				}
+			}
+		}
+		if err := g.zr.Reset(g.br); err != nil {
+			return 0, err
+		}
+		g.zr.Multistream(false)
+	}
+}
 
 // input is one opened input: its decoded bytes and what to close.
 type input struct {
@@ -70,27 +182,27 @@ func openInput(name string, stdin io.Reader, onRead func(int)) (*input, error) {
 		r = &countReader{r: r, onRead: onRead}
 	}
 	br := bufio.NewReaderSize(r, 64<<10)
-	head, _ := br.Peek(4)
-	switch {
-	case bytes.HasPrefix(head, magicGzip):
+	switch sniff(br) {
+	case "gzip":
 		zr, err := gzip.NewReader(br)
 		if err != nil {
 			in.closer()
 			return nil, fmt.Errorf("%w (gzip: %v)", ErrTruncated, err)
 		}
-		in.r, in.kind = zr, "gzip"
-	case bytes.HasPrefix(head, magicZstd):
+		zr.Multistream(false)
+		in.r, in.kind = skipBOM(&gzipMembers{zr: zr, br: br}), "gzip"
+	case "zstd":
 		zr, err := zstd.NewReader(br, zstd.WithDecoderConcurrency(1))
 		if err != nil {
 			in.closer()
 			return nil, fmt.Errorf("zstd: %w", err)
 		}
 		c := in.closer
-		in.r, in.kind, in.closer = zr, "zstd", func() { zr.Close(); c() }
-	case bytes.HasPrefix(head, magicBzip2):
-		in.r, in.kind = bzip2.NewReader(br), "bzip2"
+		in.r, in.kind, in.closer = skipBOM(zr), "zstd", func() { zr.Close(); c() }
+	case "bzip2":
+		in.r, in.kind = skipBOM(bzip2.NewReader(br)), "bzip2"
 	default:
-		in.r = br
+		in.r = skipBOM(br)
 	}
 	return in, nil
 }
