@@ -26,11 +26,6 @@ import (
 
 func init() { commands = append(commands, newTrainCmd) }
 
-// maxBaselineMeta caps the size of the naive-Bayes counts stored in the
-// model file (tensor "baseline", model.Model.Baseline); a larger one is left out
-// and only its figures are kept in the training summary.
-const maxBaselineMeta = 4 << 20
-
 // Defaults of the training recipe that are the command's own (the rest are
 // model's constants). train and eval --folds both use them, so that a
 // cross-validated recipe is the one train would run.
@@ -394,10 +389,13 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 	if len(dev) > 0 {
 		bs.DevAccuracy, bs.DevMacroF1 = model.Accuracy(gold, pred), model.MacroF1(gold, pred, len(labels))
 	}
-	if enc := base.Encode(); len(enc) <= maxBaselineMeta {
-		m.Baseline = enc
-		bs.Stored = true
-	}
+	// The baseline is always stored, whatever its size (it grows with the
+	// distinct unigrams and bigrams): it is a byte tensor that opening
+	// maps without parsing.
+	m.Baseline = base.Encode()
+	bs.Stored = true
+	// Said even with -q: it is what the file holds, not progress.
+	fmt.Fprintf(a.stderr, "convtag: baseline: naive Bayes, %s stored\n", humanBytes(len(m.Baseline)))
 
 	sum := trainSummary{
 		DataSHA256: dataHash(train, dev),
@@ -551,6 +549,19 @@ func humanRate(r float64) string {
 		return fmt.Sprintf("%.1fk", r/1e3)
 	}
 	return fmt.Sprintf("%.0f", r)
+}
+
+// humanBytes is n in decimal units: "812 B", "40.3 kB", "5.2 MB".
+func humanBytes(n int) string {
+	switch {
+	case n >= 1e9:
+		return fmt.Sprintf("%.1f GB", float64(n)/1e9)
+	case n >= 1e6:
+		return fmt.Sprintf("%.1f MB", float64(n)/1e6)
+	case n >= 1e3:
+		return fmt.Sprintf("%.1f kB", float64(n)/1e3)
+	}
+	return fmt.Sprintf("%d B", n)
 }
 
 func round6(x float64) float64 {

@@ -3,6 +3,7 @@ package main
 import (
 	"bytes"
 	"encoding/json"
+	"fmt"
 	"os"
 	"path/filepath"
 	"regexp"
@@ -138,5 +139,79 @@ func TestTrainInputProblems(t *testing.T) {
 				}
 			}
 		})
+	}
+}
+
+// TestTrainStoresLargeBaseline trains on invented records with a wide
+// vocabulary, so that the baseline's encoding passes 4 MiB, and checks that
+// it is stored and that eval scores it exactly like one refitted on the same
+// training file.
+func TestTrainStoresLargeBaseline(t *testing.T) {
+	dir := t.TempDir()
+	trainFile, devFile := filepath.Join(dir, "train.jsonl"), filepath.Join(dir, "dev.jsonl")
+	word := func(x uint64) string { // base-26 spelling of x
+		var b []byte
+		for i := 0; i < 6; i++ {
+			b = append(b, byte('a'+x%26))
+			x /= 26
+		}
+		return string(b)
+	}
+	gen := func(path string, n int, seed uint64) {
+		var buf bytes.Buffer
+		x := seed
+		next := func() uint64 { x = x*6364136223846793005 + 1442695040888963407; return x >> 33 }
+		labels := []string{"ferry", "ticket", "weather"}
+		for i := range n {
+			l := i % 3
+			ws := []string{labels[l] + "cue"}
+			for range 14 {
+				ws = append(ws, word(next()%60000))
+			}
+			fmt.Fprintf(&buf, "{\"text\":%q,\"label\":%q}\n", strings.Join(ws, " "), labels[l])
+		}
+		if err := os.WriteFile(path, buf.Bytes(), 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	gen(trainFile, 20000, 7)
+	gen(devFile, 300, 99)
+	out := filepath.Join(dir, "m.safetensors")
+	code, _, stderr := runCmd(t, "", "train", "-o", out, "--dim", "4", "--filters", "2", "--buckets", "10",
+		"--epochs", "1", "--no-fold", "-q", trainFile, "--dev", devFile)
+	if code != exitOK {
+		t.Fatalf("train: exit %d: %s", code, stderr)
+	}
+	if !regexp.MustCompile(`baseline: naive Bayes, \d+\.\d MB stored`).MatchString(stderr) {
+		t.Errorf("stderr lacks the baseline's size: %q", stderr)
+	}
+	m, err := model.Open(out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	size := len(m.Baseline)
+	m.Close()
+	if size <= 4<<20 {
+		t.Fatalf("baseline is %d bytes; the test needs more than 4 MiB", size)
+	}
+	report := func(extra ...string) string {
+		args := append([]string{"eval", "--json", "-m", out}, extra...)
+		code, stdout, stderr := runCmd(t, "", append(args, devFile)...)
+		if code != exitOK {
+			t.Fatalf("eval %q: exit %d: %s", extra, code, stderr)
+		}
+		var o struct {
+			Baseline map[string]any `json:"baseline"`
+		}
+		if err := json.Unmarshal([]byte(stdout), &o); err != nil || o.Baseline == nil {
+			t.Fatalf("eval %q: no baseline in %q (%v)", extra, stdout, err)
+		}
+		delete(o.Baseline, "source")
+		js, _ := json.Marshal(o.Baseline)
+		return string(js)
+	}
+	stored, refit := report(), report("--baseline-train", trainFile)
+	if stored != refit {
+		t.Errorf("stored baseline scores\n%s\nrefitted baseline scores\n%s", stored, refit)
 	}
 }
