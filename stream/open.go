@@ -32,8 +32,9 @@ var (
 )
 
 // sniff returns the compression br's bytes start with, or "" for plain
-// bytes. It asks for more bytes only while they could still be a header,
-// so a plain line on an idle pipe is not held back waiting for more.
+// bytes. It asks for one more byte only while the bytes so far could still
+// be a header, so a short plain line on an idle pipe ("P", "BZ") is not held
+// back waiting for input that may not come.
 func sniff(br *bufio.Reader) string {
 	head, _ := br.Peek(1)
 	if len(head) == 0 {
@@ -41,32 +42,42 @@ func sniff(br *bufio.Reader) string {
 	}
 	switch head[0] {
 	case 0x1f:
-		h, _ := br.Peek(4)
-		if len(h) == 4 && h[1] == 0x8b && h[2] == 8 && h[3]&0xe0 == 0 {
+		if h, ok := peekPrefix(br, []byte{0x1f, 0x8b, 8}, 4); ok && h[3]&0xe0 == 0 {
 			return "gzip"
 		}
 	case 0x28:
-		if h, _ := br.Peek(4); bytes.Equal(h, magicZstd) {
+		if _, ok := peekPrefix(br, magicZstd, 4); ok {
 			return "zstd"
 		}
 	case 'B':
-		h, _ := br.Peek(3)
-		if string(h) != "BZh" {
+		if h, ok := peekPrefix(br, []byte("BZh"), 4); !ok || h[3] < '1' || h[3] > '9' {
 			return ""
 		}
-		h, _ = br.Peek(10)
-		if len(h) == 10 && h[3] >= '1' && h[3] <= '9' &&
-			(bytes.Equal(h[4:], magicBzipBlock) || bytes.Equal(h[4:], magicBzipEnd)) {
+		if h, _ := br.Peek(10); len(h) == 10 && (bytes.Equal(h[4:], magicBzipBlock) || bytes.Equal(h[4:], magicBzipEnd)) {
 			return "bzip2"
 		}
 	default:
 		if head[0]&0xf0 == 0x50 {
-			if h, _ := br.Peek(4); len(h) == 4 && h[1] == 0x2a && h[2] == 0x4d && h[3] == 0x18 {
+			if _, ok := peekPrefix(br, []byte{head[0], 0x2a, 0x4d, 0x18}, 4); ok {
 				return "zstd"
 			}
 		}
 	}
 	return ""
+}
+
+// peekPrefix peeks at br byte by byte while its bytes equal prefix, then
+// peeks n bytes in all (n >= len(prefix)). It reports them and whether all
+// n were there with prefix first; it stops at the first byte that differs.
+func peekPrefix(br *bufio.Reader, prefix []byte, n int) ([]byte, bool) {
+	for i := 2; i <= len(prefix); i++ {
+		h, _ := br.Peek(i)
+		if len(h) < i || h[i-1] != prefix[i-1] {
+			return nil, false
+		}
+	}
+	h, _ := br.Peek(n)
+	return h, len(h) == n
 }
 
 // skipBOM returns r without a UTF-8 byte-order mark at its start.

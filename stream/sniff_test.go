@@ -1,6 +1,7 @@
 package stream
 
 import (
+	"bufio"
 	"bytes"
 	"os"
 	"os/exec"
@@ -73,5 +74,35 @@ func TestPzstdOutput(t *testing.T) {
 	var got bytes.Buffer
 	if _, err := got.ReadFrom(in.r); err != nil || !bytes.Equal(got.Bytes(), data) || in.kind != "zstd" {
 		t.Fatalf("kind %q, %d bytes, %v", in.kind, got.Len(), err)
+	}
+}
+
+// onceReader hands over its bytes in one Read and counts any Read after
+// that: on an idle pipe such a Read would block until more input came.
+type onceReader struct {
+	b     []byte
+	extra int
+}
+
+func (r *onceReader) Read(p []byte) (int, error) {
+	if r.b == nil {
+		r.extra++
+		return 0, nil // like a pipe with nothing in it yet
+	}
+	n := copy(p, r.b)
+	r.b = nil
+	return n, nil
+}
+
+// A short plain line that begins like a header is decided on from the
+// bytes that are there: sniffing must not ask the input for more.
+func TestSniffDoesNotWaitOnPlainLines(t *testing.T) {
+	for _, line := range []string{"P\n", "PA\n", "BZ\n", "BZh\n", "\x1f\n", "(\n"} {
+		r := &onceReader{b: []byte(line)}
+		br := bufio.NewReaderSize(r, 64<<10)
+		br.Peek(1)
+		if got := sniff(br); got != "" || r.extra != 0 {
+			t.Errorf("%q: sniff = %q after %d further reads, want plain with none", line, got, r.extra)
+		}
 	}
 }

@@ -172,19 +172,20 @@ func defaultToTag(root *cobra.Command, args []string) ([]string, error) {
 // for, or "" when word names an existing file, starts with '-' or '.', or
 // is not close to any command name.
 func likelyCommand(root *cobra.Command, word string) string {
-	if word == "" || word == "-" || strings.ContainsAny(word[:1], "-./") || strings.ContainsRune(word, '/') {
+	if word == "" || strings.ContainsAny(word[:1], "-.") || strings.ContainsRune(word, '/') {
 		return ""
 	}
 	if _, err := os.Lstat(word); err == nil {
 		return ""
 	}
+	word = strings.ToLower(word)
 	best, bestDist := "", 3
 	for _, c := range root.Commands() {
 		if !c.IsAvailableCommand() && c.Name() != "help" {
 			continue
 		}
 		name := c.Name()
-		d := editDistance(strings.ToLower(word), name)
+		d := editDistance(word, name)
 		limit := 2
 		if len(name) <= 4 {
 			limit = 1
