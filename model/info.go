@@ -107,7 +107,7 @@ func (in *Info) WriteText(w io.Writer) error {
 	}
 	line("format version", in.FormatVersion)
 	line("labels", strings.Join(quoteAll(in.Labels), " "))
-	line("vocabulary", fmt.Sprintf("%d words + %d buckets + padding = %d rows", in.Vocabulary, in.Buckets, in.Rows))
+	line("vocabulary", fmt.Sprintf("%d words + %d rows for unseen words + padding = %d rows", in.Vocabulary, in.Buckets, in.Rows))
 	line("dim", in.Dim)
 	line("widths", strings.Trim(fmt.Sprint(in.Widths), "[]"))
 	line("filters", fmt.Sprintf("%d per width", in.Filters))

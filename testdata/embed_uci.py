@@ -16,15 +16,15 @@ the npm package sentiment@5.0.2):
     go build -o /tmp/convtag ./cmd/convtag
     /usr/bin/python3 testdata/embed_uci.py --convtag /tmp/convtag \
         --data testdata/cache/uci --work /tmp/embed-uci [--folds 10] \
-        [--embed-args "--epochs 20 --subsample 1e-4"] [--static]
+        [--embed-args "--passes 20 --thin-above 1e-4"] [--static]
 
 About 20 s per fold on 2 cores.
 
-Measured here (10 folds, seed 1, d=128, embed --min-count 2 --epochs 20, the
+Measured here (10 folds, seed 1, d=128, embed --min-seen 2 --passes 20, the
 training portion's ~27k tokens of text, train defaults otherwise):
-    --subsample 1e-4 (default)   random 0.7937, vectors 0.7847, -0.9 +- 3.2 points, 4/10 folds better
-    --subsample 1e-3             random 0.7937, vectors 0.8157, +2.2 +- 2.4 points, 9/10 folds better
-    --subsample 1e-3 --static    random 0.7937, vectors 0.6883, -10.5 +- 3.0 points, 0/10 folds better
+    --thin-above 1e-4 (default)  random 0.7937, vectors 0.7847, -0.9 +- 3.2 points, 4/10 folds better
+    --thin-above 1e-3            random 0.7937, vectors 0.8157, +2.2 +- 2.4 points, 9/10 folds better
+    --thin-above 1e-3 --static   random 0.7937, vectors 0.6883, -10.5 +- 3.0 points, 0/10 folds better
 (+- is the sd of the paired fold differences.) On so little text the
 default threshold discards most frequent words and the vectors collapse
 towards one direction (mean pairwise cosine 0.999; gensim's Word2Vec with the
@@ -56,8 +56,8 @@ def main():
     ap.add_argument("--work", required=True)
     ap.add_argument("--folds", type=int, default=10)
     ap.add_argument("--seed", type=int, default=1)
-    ap.add_argument("--dim", type=int, default=128)
-    ap.add_argument("--embed-args", default="--epochs 20")
+    ap.add_argument("--vector-size", type=int, default=128)
+    ap.add_argument("--embed-args", default="--passes 20")
     ap.add_argument("--static", action="store_true", help="freeze the vectors in training")
     a = ap.parse_args()
     os.makedirs(a.work, exist_ok=True)
@@ -94,9 +94,9 @@ def main():
         write(tr, train)
         write(te, test)
         vec = os.path.join(a.work, "vec%d.txt" % k)
-        run([a.convtag, "embed", "-o", vec, "--text-key", "text", "--dim", str(a.dim), "--min-count", "2",
+        run([a.convtag, "embed", "-o", vec, "--text-key", "text", "--vector-size", str(a.dim), "--min-seen", "2",
              "-j", "1", "--seed", str(a.seed), "-q"] + shlex.split(a.embed_args) + [tr])
-        common = ["--seed", str(a.seed), "-j", "2", "-q", "--dim", str(a.dim)]
+        common = ["--seed", str(a.seed), "-j", "2", "-q", "--vector-size", str(a.dim)]
         m_rand, m_vec = os.path.join(a.work, "rand%d.st" % k), os.path.join(a.work, "vec%d.st" % k)
         run([a.convtag, "train", "-o", m_rand] + common + [tr])
         vflags = ["--vectors", vec] + (["--freeze-vectors"] if a.static else [])

@@ -27,7 +27,7 @@ func init() { commands = append(commands, newEmbedCmd) }
 // embedFlags are the embed command's settings.
 type embedFlags struct {
 	output, input  string
-	near, textKeys []string
+	similar, textKeys []string
 	binary, quiet  bool
 	top            int
 	o              sgns.Options
@@ -37,7 +37,7 @@ type embedFlags struct {
 func newEmbedCmd(a *app) *cobra.Command {
 	var f embedFlags
 	c := &cobra.Command{
-		Use:   "embed -o VECTORS [flags] [FILE...]\n  convtag embed --near WORD -i VECTORS",
+		Use:   "embed -o VECTORS [flags] [FILE...]\n  convtag embed --similar-to WORD --from VECTORS",
 		Short: "Learn word vectors from unlabelled text",
 		Long: `embed learns word vectors from unlabelled text by skip-gram with negative
 sampling (Mikolov et al., 2013), for "convtag train --vectors".
@@ -53,22 +53,26 @@ is copied to a temporary file first).
 Vectors are written in the common word-vector text format ("count dim",
 then "word v1 ... vd" lines), or with --binary the binary variant.
 
-With --near, embed instead prints the words closest to WORD by cosine
-similarity in the vectors file given by -i, one "word<TAB>neighbour<TAB>
-similarity" line each.
+With --similar-to, embed instead lists the words whose vectors point the
+most the same way as WORD's (cosine similarity) in the vectors file given
+by --from: one line per word found, "WORD<TAB>rank<TAB>word<TAB>cosine".
+
+The defaults are the published ones for skip-gram with negative sampling
+and sub-sampling of frequent words: --vector-size 100, --context 5,
+--noise-words 5, --min-seen 5, --passes 5, --thin-above 1e-4.
 
 With -j 1 a --seed gives identical vectors; with more jobs the vectors are
 updated without locks and vary from run to run.
 
 ` + exitHelp,
-		Example: `  convtag embed -o chat.vec chat-2026-*.log.gz
-  convtag embed -o chat.vec --text-key text --dim 128 chat.jsonl
-  convtag train -o ferry.safetensors --vectors chat.vec testdata/demo/train.jsonl
-  convtag embed --near ferry --near delayed -i chat.vec`,
+		Example: `  convtag embed -o chat.wordvec.txt chat-2026-*.log.gz
+  convtag embed -o chat.wordvec.txt --text-key text --vector-size 128 chat.jsonl
+  convtag train -o ferry.safetensors --vectors chat.wordvec.txt testdata/demo/train.jsonl
+  convtag embed --similar-to ferry --similar-to delayed --from chat.wordvec.txt`,
 		Args: cobra.ArbitraryArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
-			if len(f.near) > 0 {
-				return runNear(a, &f, args)
+			if len(f.similar) > 0 {
+				return runSimilar(a, &f, args)
 			}
 			return runEmbed(a, &f, args)
 		},
@@ -77,19 +81,19 @@ updated without locks and vary from run to run.
 	fl.StringVarP(&f.output, "output", "o", "", `vectors file to write ("-" for standard output)`)
 	fl.BoolVar(&f.binary, "binary", false, "write the binary word-vector format instead of text")
 	fl.StringArrayVar(&f.textKeys, "text-key", nil, "dotted path of the text in a JSON record; repeat to join several (default: plain lines)")
-	fl.IntVar(&f.o.Dim, "dim", sgns.DefaultDim, "vector size")
-	fl.IntVar(&f.o.Window, "window", sgns.DefaultWindow, "largest distance to a context word (each centre word draws 1..window)")
-	fl.IntVar(&f.o.Negative, "negative", sgns.DefaultNegative, "noise words per context word")
-	fl.IntVar(&f.o.MinCount, "min-count", sgns.DefaultMinCount, "leave out words seen fewer times")
-	fl.Float64Var(&f.sample, "subsample", sgns.DefaultSample, "sub-sampling threshold for frequent words (1e-3 keeps more of a small input); 0 turns it off")
+	fl.IntVar(&f.o.Dim, "vector-size", sgns.DefaultDim, "numbers per word vector")
+	fl.IntVar(&f.o.Window, "context", sgns.DefaultWindow, "how many words on each side a word learns from at most (each word draws a reach of 1..N)")
+	fl.IntVar(&f.o.Negative, "noise-words", sgns.DefaultNegative, "random words contrasted with each context word (negative sampling)")
+	fl.IntVar(&f.o.MinCount, "min-seen", sgns.DefaultMinCount, "leave out words seen fewer times")
+	fl.Float64Var(&f.sample, "thin-above", sgns.DefaultSample, "share of the tokens above which a word is thinned out (sub-sampling; 1e-3 keeps more of a small input); 0 keeps every token")
 	fl.Float64Var(&f.o.Alpha, "learning-rate", sgns.DefaultAlpha, "starting learning rate, decayed linearly to nothing")
-	fl.IntVar(&f.o.Epochs, "epochs", sgns.DefaultEpochs, "passes over the input")
+	fl.IntVar(&f.o.Epochs, "passes", sgns.DefaultEpochs, "passes over the input")
 	fl.Uint64Var(&f.o.Seed, "seed", 1, "seed for initialisation, sampling and windows")
 	fl.IntVarP(&f.o.Jobs, "jobs", "j", 0, "worker threads (default: all cores); only -j 1 is reproducible")
 	fl.BoolVarP(&f.quiet, "quiet", "q", false, "no progress on stderr")
-	fl.StringArrayVar(&f.near, "near", nil, "print the nearest neighbours of WORD in the -i vectors (repeatable)")
-	fl.StringVarP(&f.input, "input", "i", "", "vectors file for --near")
-	fl.IntVar(&f.top, "top", 10, "neighbours to print for each --near word")
+	fl.StringArrayVar(&f.similar, "similar-to", nil, "list the words most similar to WORD in the --from vectors (repeatable)")
+	fl.StringVar(&f.input, "from", "", "vectors file for --similar-to")
+	fl.IntVar(&f.top, "count", 10, "words to list for each --similar-to word")
 	return c
 }
 
@@ -99,17 +103,18 @@ func (f *embedFlags) check(args []string) error {
 	case f.output == "":
 		return usageErr("convtag embed -o VECTORS FILE...", "embed: no output file (-o)")
 	case f.input != "":
-		return usageErr("convtag embed --near WORD -i VECTORS", "embed: -i is for --near")
+		return usageErr("convtag embed --similar-to WORD --from VECTORS", "embed: --from is for --similar-to")
 	case o.Dim < 1 || o.Dim > vectors.MaxDim:
-		return usageErr("--dim 100", "embed: --dim %d out of range 1..%d", o.Dim, vectors.MaxDim)
+		return usageErr("--vector-size 100", "embed: --vector-size %d out of range 1..%d", o.Dim, vectors.MaxDim)
 	case o.Window < 1 || o.Negative < 1 || o.MinCount < 1 || o.Epochs < 1:
-		return usageErr("", "embed: --window, --negative, --min-count and --epochs must be at least 1")
+		return usageErr("convtag embed --help", "embed: %s must be at least 1", firstBelowOne(
+			"--context", o.Window, "--noise-words", o.Negative, "--min-seen", o.MinCount, "--passes", o.Epochs))
 	case o.Jobs < 0:
 		return usageErr("-j 2", "embed: --jobs %d is negative", o.Jobs)
 	case !(o.Alpha > 0 && o.Alpha < 10):
 		return usageErr("--learning-rate 0.025", "embed: --learning-rate %g out of range (0, 10)", o.Alpha)
 	case !(f.sample >= 0 && f.sample < 1):
-		return usageErr("--subsample 1e-4", "embed: --subsample %g out of range [0, 1)", f.sample)
+		return usageErr("--thin-above 1e-4", "embed: --thin-above %g out of range [0, 1)", f.sample)
 	}
 	return nil
 }
@@ -194,7 +199,7 @@ func runEmbed(a *app, f *embedFlags, args []string) error {
 		if jobs == 0 {
 			jobs = runtime.GOMAXPROCS(0)
 		}
-		fmt.Fprintf(a.stderr, "convtag: embed: %d words of dimension %d from %d records (%d tokens; %d distinct words below --min-count %d); %d epochs on %d jobs in %s, %s words/s; wrote %s\n",
+		fmt.Fprintf(a.stderr, "convtag: embed: %d words of dimension %d from %d records (%d tokens; %d distinct words below --min-seen %d); %d passes on %d jobs in %s, %s tokens/s; wrote %s\n",
 			res.Vectors.Len(), res.Vectors.Dim, res.Records, res.Tokens, res.Rare, f.o.MinCount,
 			f.o.Epochs, jobs, res.TrainTime.Round(time.Millisecond), siCount(float64(res.Words)*float64(f.o.Epochs)/res.TrainTime.Seconds()), f.output)
 	}
@@ -271,14 +276,14 @@ func embedProgress(a *app) (func(sgns.Progress), time.Duration) {
 	return func(p sgns.Progress) {
 		var line string
 		if p.Phase == sgns.PhaseCount {
-			line = fmt.Sprintf("counting words: %s tokens, %s tokens/s", siCount(float64(p.Words)), siCount(p.WordsPerSecond()))
+			line = fmt.Sprintf("counting · %s tokens · %s tokens/s", siCount(float64(p.Words)), siCount(p.WordsPerSecond()))
 		} else {
-			line = fmt.Sprintf("epoch %d/%d: %5.1f%%, %s words/s, learning rate %.5f", p.Epoch, p.Epochs,
+			line = fmt.Sprintf("pass %d/%d · %.0f%% · %s tokens/s · rate %.4f", p.Epoch, p.Epochs,
 				100*float64(p.Words)/float64(max(p.Total, 1)), siCount(p.WordsPerSecond()), p.Alpha)
 			if p.Done {
-				line += fmt.Sprintf(", %s", p.Elapsed.Round(100*time.Millisecond))
+				line += fmt.Sprintf(" · took %s", p.Elapsed.Round(100*time.Millisecond))
 			} else {
-				line += fmt.Sprintf(", %s left", p.Remaining().Round(time.Second))
+				line += fmt.Sprintf(" · about %s left", p.Remaining().Round(time.Second))
 			}
 		}
 		switch {
@@ -292,6 +297,17 @@ func embedProgress(a *app) (func(sgns.Progress), time.Duration) {
 	}, every
 }
 
+// firstBelowOne names the first of the (flag, value) pairs whose value is
+// below 1.
+func firstBelowOne(pairs ...any) string {
+	for i := 0; i+1 < len(pairs); i += 2 {
+		if pairs[i+1].(int) < 1 {
+			return fmt.Sprintf("%s (%d)", pairs[i], pairs[i+1])
+		}
+	}
+	return ""
+}
+
 // siCount spells n with a k or M suffix.
 func siCount(n float64) string {
 	switch {
@@ -303,14 +319,14 @@ func siCount(n float64) string {
 	return fmt.Sprintf("%.0f", n)
 }
 
-func runNear(a *app, f *embedFlags, args []string) error {
+func runSimilar(a *app, f *embedFlags, args []string) error {
 	switch {
 	case f.input == "":
-		return usageErr("convtag embed --near WORD -i VECTORS", "embed: --near needs the vectors file (-i)")
+		return usageErr("convtag embed --similar-to WORD --from VECTORS", "embed: --similar-to needs the vectors file (--from)")
 	case f.output != "" || len(args) > 0:
-		return usageErr("convtag embed --near WORD -i VECTORS", "embed: --near reads vectors and takes no -o or input files")
+		return usageErr("convtag embed --similar-to WORD --from VECTORS", "embed: --similar-to reads vectors and takes no -o or input files")
 	case f.top < 1:
-		return usageErr("--top 10", "embed: --top %d is below 1", f.top)
+		return usageErr("--count 10", "embed: --count %d is below 1", f.top)
 	}
 	r, err := os.Open(f.input)
 	if err != nil {
@@ -325,7 +341,7 @@ func runNear(a *app, f *embedFlags, args []string) error {
 	var ts model.Tokens
 	idx := s.Index()
 	var out strings.Builder
-	for _, w := range f.near {
+	for _, w := range f.similar {
 		q, ok := idx[w]
 		if !ok {
 			// Look the word up as the tokenizer spells it ("Ferry" → "ferry").
@@ -337,8 +353,8 @@ func runNear(a *app, f *embedFlags, args []string) error {
 		if !ok {
 			return withCode(exitFailure, fmt.Errorf("embed: %q is not in %s (%d words)", w, f.input, s.Len()))
 		}
-		for _, n := range s.NearestTo(s.Vec(q), f.top, q) {
-			fmt.Fprintf(&out, "%s\t%s\t%.4f\n", s.Words[q], n.Word, n.Similarity)
+		for i, n := range s.NearestTo(s.Vec(q), f.top, q) {
+			fmt.Fprintf(&out, "%s\t%d\t%s\t%.4f\n", s.Words[q], i+1, n.Word, n.Similarity)
 		}
 	}
 	_, err = io.WriteString(a.stdout, out.String())

@@ -7,6 +7,7 @@ import (
 	"os"
 	"path/filepath"
 	"slices"
+	"strconv"
 	"strings"
 	"testing"
 
@@ -67,7 +68,7 @@ func TestEmbed(t *testing.T) {
 	if err := os.WriteFile(in, []byte(text), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	common := []string{"--dim", "12", "--epochs", "3", "--subsample", "0", "-j", "1", "--seed", "7", "-q"}
+	common := []string{"--vector-size", "12", "--passes", "3", "--thin-above", "0", "-j", "1", "--seed", "7", "-q"}
 	txt, bin := filepath.Join(dir, "v.txt"), filepath.Join(dir, "v.bin")
 	if code, _, errs := runCmd(t, "", append([]string{"embed", "-o", txt, in}, common...)...); code != exitOK {
 		t.Fatalf("embed: exit %d: %s", code, errs)
@@ -94,23 +95,23 @@ func TestEmbed(t *testing.T) {
 		}
 	}
 
-	// --near: the group mates come first.
-	code, out, errs = runCmd(t, "", "embed", "--near", "Ferry", "--near", "voucher", "--top", "2", "-i", txt)
+	// --similar-to: the group mates come first.
+	code, out, errs = runCmd(t, "", "embed", "--similar-to", "Ferry", "--similar-to", "voucher", "--count", "2", "--from", txt)
 	if code != exitOK {
-		t.Fatalf("--near: exit %d: %s", code, errs)
+		t.Fatalf("--similar-to: exit %d: %s", code, errs)
 	}
 	lines := strings.Split(strings.TrimSpace(out), "\n")
 	if len(lines) != 4 {
-		t.Fatalf("--near printed %q", out)
+		t.Fatalf("--similar-to printed %q", out)
 	}
 	for i, want := range [][]string{groups[0], groups[3]} {
 		var got []string
-		for _, l := range lines[2*i : 2*i+2] {
+		for r, l := range lines[2*i : 2*i+2] {
 			f := strings.Split(l, "\t")
-			if len(f) != 3 || !slices.Contains(want, f[0]) {
-				t.Fatalf("line %q", l)
+			if len(f) != 4 || !slices.Contains(want, f[0]) || f[1] != strconv.Itoa(r+1) {
+				t.Fatalf("line %q: want query, rank %d, word, cosine", l, r+1)
 			}
-			got = append(got, f[1])
+			got = append(got, f[2])
 		}
 		for _, g := range got {
 			if !slices.Contains(want, g) {
@@ -135,17 +136,18 @@ func TestEmbedJSONAndProgress(t *testing.T) {
 		t.Fatal(err)
 	}
 	out := filepath.Join(dir, "v.txt")
-	code, _, errs := runCmd(t, "", "embed", "-o", out, "--text-key", "msg.body", "--dim", "8", "--epochs", "2", "-j", "1", in)
+	code, _, errs := runCmd(t, "", "embed", "-o", out, "--text-key", "msg.body", "--vector-size", "8", "--passes", "2", "-j", "1", in)
 	if code != exitOK {
 		t.Fatalf("exit %d: %s", code, errs)
 	}
 	for _, want := range []string{
 		"1 records skipped",
 		in + ":12: stream: malformed JSON",
-		"counting words:",
-		"epoch 2/2: 100.0%",
-		"learning rate",
-		"words/s",
+		"counting · ",
+		"pass 2/2 · 100% · ",
+		" · rate 0.",
+		" tokens/s",
+		" · took ",
 		"from 300 records",
 	} {
 		if !strings.Contains(errs, want) {
@@ -173,12 +175,12 @@ func TestEmbedErrors(t *testing.T) {
 		msg  string
 	}{
 		{[]string{"embed", "in.txt"}, exitUsage, "no output file"},
-		{[]string{"embed", "-o", "x", "--dim", "0"}, exitUsage, "--dim 0"},
-		{[]string{"embed", "-o", "x", "--subsample", "-1"}, exitUsage, "--subsample"},
-		{[]string{"embed", "--near", "ferry"}, exitUsage, "-i"},
-		{[]string{"embed", "--near", "ferry", "-i", vec, "-o", "x"}, exitUsage, "no -o"},
-		{[]string{"embed", "--near", "quay", "-i", vec}, exitFailure, `"quay" is not in`},
-		{[]string{"embed", "--near", "ferry", "-i", bad}, exitFailure, "bad.txt: vectors: line 3: wrong number of values"},
+		{[]string{"embed", "-o", "x", "--vector-size", "0"}, exitUsage, "--vector-size 0"},
+		{[]string{"embed", "-o", "x", "--thin-above", "-1"}, exitUsage, "--thin-above"},
+		{[]string{"embed", "--similar-to", "ferry"}, exitUsage, "--from"},
+		{[]string{"embed", "--similar-to", "ferry", "--from", vec, "-o", "x"}, exitUsage, "no -o"},
+		{[]string{"embed", "--similar-to", "quay", "--from", vec}, exitFailure, `"quay" is not in`},
+		{[]string{"embed", "--similar-to", "ferry", "--from", bad}, exitFailure, "bad.txt: vectors: line 3: wrong number of values"},
 		{[]string{"embed", "-o", filepath.Join(dir, "o"), filepath.Join(dir, "missing.txt")}, exitFailure, "missing.txt"},
 		{[]string{"embed", "-o", filepath.Join(dir, "o"), vec}, exitFailure, "no word reaches the minimum count"},
 	} {

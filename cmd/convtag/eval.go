@@ -70,7 +70,7 @@ figures. Records with several labels are scored on the first.
   convtag eval --folds 10 --epochs 10 --format tsv sentences.tsv`,
 		Args: cobra.ArbitraryArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
-			f.train.dimSet = cmd.Flags().Changed("dim")
+			f.train.dimSet = cmd.Flags().Changed("vector-size")
 			if err := f.check(cmd, args); err != nil {
 				return err
 			}
@@ -100,7 +100,7 @@ figures. Records with several labels are scored on the first.
 // names and defaults.
 func addFoldTrainFlags(fl *pflag.FlagSet, t *trainFlags) {
 	fl.Float64Var(&t.devFraction, "dev-fraction", defaultDevFraction, "with --folds: share of each training part held out for early stopping")
-	fl.IntVar(&t.dim, "dim", model.DefaultDim, "with --folds: embedding size")
+	fl.IntVar(&t.dim, "vector-size", model.DefaultDim, "with --folds: embedding size")
 	fl.IntSliceVar(&t.widths, "widths", model.DefaultWidths, "with --folds: convolution window widths")
 	fl.IntVar(&t.filters, "filters", model.DefaultFilters, "with --folds: filters per width")
 	fl.IntVar(&t.hidden, "hidden", 0, "with --folds: size of a ReLU hidden layer; 0 for none")
@@ -111,9 +111,9 @@ func addFoldTrainFlags(fl *pflag.FlagSet, t *trainFlags) {
 	fl.IntVarP(&t.jobs, "jobs", "j", 0, "with --folds: training threads (default: all cores)")
 	fl.StringVar(&t.optimizer, "optimizer", model.OptAdadelta, "with --folds: adadelta or adam")
 	fl.Float64Var(&t.lr, "learning-rate", 0, "with --folds: learning rate (default: 1 for adadelta, 0.001 for adam)")
-	fl.IntVar(&t.minCount, "min-count", defaultMinCount, "with --folds: words seen fewer times share the hash buckets")
+	fl.IntVar(&t.minCount, "min-seen", defaultMinCount, "with --folds: words seen fewer times share the --unseen-rows")
 	fl.IntVar(&t.maxWords, "max-words", 0, "with --folds: keep at most this many words; 0 for all")
-	fl.IntVar(&t.buckets, "buckets", model.DefaultBuckets, "with --folds: shared rows for words outside the vocabulary")
+	fl.IntVar(&t.buckets, "unseen-rows", model.DefaultBuckets, "with --folds: rows shared among words with no row of their own")
 	fl.StringVar(&t.classWeights, "class-weights", defaultClassWeights, "with --folds: none or balanced")
 }
 
@@ -702,9 +702,9 @@ func runFolds(a *app, f *evalFlags, args []string) error {
 	}
 	fold := model.StratifiedFolds(y, f.folds, t.seed)
 	out := foldsOutput{Files: args, Folds: f.folds, Seed: t.seed, Records: len(all), Labels: labels,
-		Options: map[string]any{"dim": t.dim, "widths": t.widths, "filters": t.filters, "hidden": t.hidden, "epochs": t.epochs,
-			"patience": t.patience, "batch": t.batch, "optimizer": t.optimizer, "learning_rate": t.lr, "min_count": t.minCount,
-			"max_words": t.maxWords, "buckets": t.buckets, "class_weights": t.classWeights, "dev_fraction": t.devFraction, "jobs": t.jobs}}
+		Options: map[string]any{"vector_size": t.dim, "widths": t.widths, "filters": t.filters, "hidden": t.hidden, "epochs": t.epochs,
+			"patience": t.patience, "batch": t.batch, "optimizer": t.optimizer, "learning_rate": t.lr, "min_seen": t.minCount,
+			"max_words": t.maxWords, "unseen_rows": t.buckets, "class_weights": t.classWeights, "dev_fraction": t.devFraction, "jobs": t.jobs}}
 	var na, nf, ba, bf []float64
 	for k := range f.folds {
 		var rest, test []int

@@ -28,7 +28,7 @@ var (
 const evalModel = "testdata/eval/demo-small.safetensors"
 
 var evalModelArgs = []string{"train", "-q", "-o", evalModel, "-j", "1", "--seed", "1",
-	"--dim", "16", "--filters", "12", "--buckets", "64", "--no-fold",
+	"--vector-size", "16", "--filters", "12", "--unseen-rows", "64", "--no-fold",
 	"--dev", "../../testdata/demo/dev.jsonl", "../../testdata/demo/train.jsonl"}
 
 const demoDev = "../../testdata/demo/dev.jsonl"
@@ -295,7 +295,7 @@ func TestEvalErrors(t *testing.T) {
 // tested once, the folds are stratified, and the summary is the mean and
 // sample standard deviation of the folds' figures.
 func TestEvalFolds(t *testing.T) {
-	args := []string{"eval", "--json", "--folds", "3", "--epochs", "2", "--dim", "8", "--filters", "4", "--buckets", "16", "-j", "1", "../../testdata/demo/train.jsonl"}
+	args := []string{"eval", "--json", "--folds", "3", "--epochs", "2", "--vector-size", "8", "--filters", "4", "--unseen-rows", "16", "-j", "1", "../../testdata/demo/train.jsonl"}
 	code, out, errs := runCmd(t, "", args...)
 	if code != exitOK {
 		t.Fatalf("exit %d: %s", code, errs)

@@ -18,7 +18,7 @@ func newInspectCmd(a *app) *cobra.Command {
 	c := &cobra.Command{
 		Use:   "inspect [MODEL]",
 		Short: "Show what a model file holds",
-		Long: `inspect prints what a model file holds: labels, vocabulary size, buckets,
+		Long: `inspect prints what a model file holds: labels, vocabulary size, rows for unseen words,
 embedding size, window widths, filters, whether the folded table is present,
 file size, format version, every metadata field and the training summary.
 With no MODEL it describes the built-in model.

@@ -83,7 +83,7 @@ The same data, flags, --seed and --jobs give a byte-identical model file.
   convtag train -o m.safetensors --text-key msg.subject --text-key msg.body --label-key tags chat.jsonl`,
 		Args: cobra.ArbitraryArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
-			f.dimSet = cmd.Flags().Changed("dim")
+			f.dimSet = cmd.Flags().Changed("vector-size")
 			return runTrain(a, &f, args)
 		},
 	}
@@ -94,7 +94,7 @@ The same data, flags, --seed and --jobs give a byte-identical model file.
 	fl.StringVar(&f.format, "format", stream.LabelledJSONL, "input format: jsonl or tsv (label<TAB>text)")
 	fl.StringVar(&f.dev, "dev", "", "held-out records for early stopping and the reported accuracy, instead of --dev-fraction")
 	fl.Float64Var(&f.devFraction, "dev-fraction", defaultDevFraction, "share of each tag's records held out when there is no --dev")
-	fl.IntVar(&f.dim, "dim", model.DefaultDim, "embedding size (default: the --vectors file's, else 128)")
+	fl.IntVar(&f.dim, "vector-size", model.DefaultDim, "embedding size (default: the --vectors file's, else 128)")
 	fl.IntSliceVar(&f.widths, "widths", model.DefaultWidths, "convolution window widths, in words")
 	fl.IntVar(&f.filters, "filters", model.DefaultFilters, "filters per width")
 	fl.IntVar(&f.hidden, "hidden", 0, "size of a ReLU hidden layer before the output; 0 for none")
@@ -105,9 +105,9 @@ The same data, flags, --seed and --jobs give a byte-identical model file.
 	fl.IntVarP(&f.jobs, "jobs", "j", 0, "worker threads (default: all cores); the model depends on it")
 	fl.StringVar(&f.optimizer, "optimizer", model.OptAdadelta, "adadelta or adam")
 	fl.Float64Var(&f.lr, "learning-rate", 0, "learning rate (default: 1 for adadelta, 0.001 for adam)")
-	fl.IntVar(&f.minCount, "min-count", defaultMinCount, "words seen fewer times share the hash buckets instead of a row of their own")
+	fl.IntVar(&f.minCount, "min-seen", defaultMinCount, "words seen fewer times have no row of their own and share the --unseen-rows")
 	fl.IntVar(&f.maxWords, "max-words", 0, "keep at most this many words, most frequent first; 0 for all")
-	fl.IntVar(&f.buckets, "buckets", model.DefaultBuckets, "shared rows for words outside the vocabulary")
+	fl.IntVar(&f.buckets, "unseen-rows", model.DefaultBuckets, "rows shared, by a hash of the word, among words with no row of their own")
 	fl.StringVar(&f.vectors, "vectors", "", "initial word vectors (text or binary word-vector format)")
 	fl.BoolVar(&f.freeze, "freeze-vectors", false, "keep the rows taken from --vectors fixed")
 	fl.StringVar(&f.classWeights, "class-weights", defaultClassWeights, "none, or balanced to weight each tag's loss by n/(tags*n_tag)")
@@ -130,7 +130,7 @@ func (f *trainFlags) check(args []string) error {
 	case f.epochs < 1 || f.batch < 1 || f.patience < 0 || f.jobs < 0:
 		return usageErr("", "train: --epochs and --batch must be at least 1, --patience and --jobs at least 0")
 	case f.minCount < 1 || f.maxWords < 0:
-		return usageErr("", "train: --min-count must be at least 1 and --max-words at least 0")
+		return usageErr("", "train: --min-seen must be at least 1 and --max-words at least 0")
 	case f.optimizer != model.OptAdadelta && f.optimizer != model.OptAdam:
 		return usageErr("--optimizer adadelta or --optimizer adam", "train: unknown --optimizer %q", f.optimizer)
 	case f.classWeights != "none" && f.classWeights != "balanced":
@@ -282,7 +282,7 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 			return withCode(exitFailure, fmt.Errorf("train: %s: %w", f.vectors, err))
 		}
 		if f.dimSet && f.dim != vecs.Dim {
-			return usageErr("leave out --dim to use the vectors' size", "train: --dim %d but %s has %d-dimensional vectors", f.dim, f.vectors, vecs.Dim)
+			return usageErr("leave out --vector-size to use the vectors' size", "train: --vector-size %d but %s has %d-dimensional vectors", f.dim, f.vectors, vecs.Dim)
 		}
 		f.dim = vecs.Dim
 	}
@@ -344,7 +344,7 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 	if f.classWeights == "balanced" {
 		opt.ClassWeights = model.BalancedWeights(trEx, len(labels))
 	}
-	say("training on %d records (%s), %d dev records; %d words + %d buckets, d=%d, widths %s x %d filters",
+	say("training on %d records (%s), %d dev records; %d words + %d unseen-word rows, d=%d, widths %s x %d filters",
 		len(train), countString(train, labels), len(dev), len(words), f.buckets, f.dim, intsString(f.widths), f.filters)
 	bar := newTrainBar(a, f.quiet, len(trEx))
 	start := time.Now()
@@ -404,7 +404,7 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 		Counts:     map[string]map[string]int{"train": countMap(train), "dev": countMap(dev)},
 		Vocabulary: len(words), Coverage: coverage,
 		Options: map[string]any{"epochs": f.epochs, "patience": f.patience, "batch": f.batch, "seed": f.seed,
-			"jobs": opt.Jobs, "optimizer": f.optimizer, "learning_rate": f.lr, "min_count": f.minCount,
+			"jobs": opt.Jobs, "optimizer": f.optimizer, "learning_rate": f.lr, "min_seen": f.minCount,
 			"max_words": f.maxWords, "class_weights": f.classWeights, "freeze_vectors": f.freeze,
 			"dropout": model.DefaultDropout, "max_norm": model.DefaultMaxNorm, "dev_fraction": f.devFraction},
 		EpochsRun: res.EpochsRun, BestEpoch: res.BestEpoch,

@@ -16,7 +16,7 @@ import (
 
 // small keeps the command tests fast; the recipe itself is checked in
 // package model against PyTorch.
-var small = []string{"--dim", "16", "--filters", "8", "--buckets", "50", "--epochs", "3", "-q"}
+var small = []string{"--vector-size", "16", "--filters", "8", "--unseen-rows", "50", "--epochs", "3", "-q"}
 
 func trainArgs(out string, extra ...string) []string {
 	args := append([]string{"train", "-o", out}, small...)
@@ -177,7 +177,7 @@ func TestTrainStoresLargeBaseline(t *testing.T) {
 	gen(trainFile, 20000, 7)
 	gen(devFile, 300, 99)
 	out := filepath.Join(dir, "m.safetensors")
-	code, _, stderr := runCmd(t, "", "train", "-o", out, "--dim", "4", "--filters", "2", "--buckets", "10",
+	code, _, stderr := runCmd(t, "", "train", "-o", out, "--vector-size", "4", "--filters", "2", "--unseen-rows", "10",
 		"--epochs", "1", "--no-fold", "-q", trainFile, "--dev", devFile)
 	if code != exitOK {
 		t.Fatalf("train: exit %d: %s", code, stderr)

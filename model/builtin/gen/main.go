@@ -49,8 +49,8 @@ func run() error {
 	root := filepath.Dir(filepath.Dir(dir)) // testdata/cache/uci -> module root
 	root = filepath.Dir(root)
 	args := []string{"run", "./cmd/convtag", "train", "-o", out + ".tmp",
-		"--dim", "128", "--widths", "3,4,5", "--filters", "100",
-		"--min-count", "3", "--buckets", "500", "--fold-half",
+		"--vector-size", "128", "--widths", "3,4,5", "--filters", "100",
+		"--min-seen", "3", "--unseen-rows", "500", "--fold-half",
 		"--seed", "1", "-j", "2", "--dev-fraction", "0.1"}
 	for _, src := range uci.Sources {
 		// Relative to the module root, so that the training summary in the
