@@ -87,14 +87,12 @@ in order and without losing a record, with a 1-D convolutional network that
 runs on the CPU. With no command it runs "convtag tag".
 
 ` + exitHelp,
-		Version:       version,
 		SilenceUsage:  true,
 		SilenceErrors: true,
 	}
 	root.SetIn(a.stdin)
 	root.SetOut(a.stdout)
 	root.SetErr(a.stderr)
-	root.SetVersionTemplate("convtag {{.Version}}\n")
 	root.SetFlagErrorFunc(func(c *cobra.Command, err error) error {
 		return usageErr("convtag "+c.Name()+" --help", "%v", err)
 	})
@@ -111,6 +109,7 @@ runs on the CPU. With no command it runs "convtag tag".
 		}
 		root.AddCommand(sub)
 	}
+	registerCompletions(a, root)
 	return root
 }
 
@@ -154,7 +153,9 @@ func defaultToTag(root *cobra.Command, args []string) ([]string, error) {
 	}
 	first := args[0]
 	switch first {
-	case "-h", "--help", "--version", "-v", "help", "completion", "__complete", "__completeNoDesc":
+	case "--version":
+		return append([]string{"version"}, args[1:]...), nil
+	case "-h", "--help", "help", "completion", "__complete", "__completeNoDesc":
 		return args, nil
 	}
 	for _, c := range root.Commands() {
@@ -165,7 +166,39 @@ func defaultToTag(root *cobra.Command, args []string) ([]string, error) {
 	if guess := likelyCommand(root, first); guess != "" {
 		return nil, usageErr("convtag "+guess+" --help", "unknown command %q (no file of that name either); did you mean %s?", first, guess)
 	}
+	if commandLike(first) {
+		return nil, usageErr("convtag --help", "unknown command %q (no file of that name either); the commands are %s", first, commandList(root))
+	}
 	return append([]string{"tag"}, args...), nil
+}
+
+// commandLike reports whether word, which names no existing file, reads as
+// a command word rather than a file name: lowercase letters and inner
+// hyphens only, as every command name is. Data files nearly always have a
+// suffix or a path, so "convtag versoin" or "convtag run" is taken for a
+// command that does not exist rather than for an input that is missing.
+func commandLike(word string) bool {
+	if word == "" || word[0] == '-' || word[len(word)-1] == '-' {
+		return false
+	}
+	for _, r := range word {
+		if (r < 'a' || r > 'z') && r != '-' {
+			return false
+		}
+	}
+	_, err := os.Lstat(word)
+	return err != nil
+}
+
+// commandList names the commands a user can give, comma-separated.
+func commandList(root *cobra.Command) string {
+	var names []string
+	for _, c := range root.Commands() {
+		if c.IsAvailableCommand() {
+			names = append(names, c.Name())
+		}
+	}
+	return strings.Join(names, ", ")
 }
 
 // likelyCommand returns the command that word is probably a typing slip

@@ -4,11 +4,15 @@ import (
 	"bytes"
 	"os"
 	"path/filepath"
+	"runtime"
 	"strings"
 	"testing"
 
 	"github.com/spf13/cobra"
 	"github.com/spf13/pflag"
+	"golang.org/x/sys/cpu"
+
+	"convtag/model"
 )
 
 // runCmd drives the whole program in memory, as a shell would.
@@ -21,8 +25,57 @@ func runCmd(t *testing.T, stdin string, args ...string) (code int, stdout, stder
 
 func TestVersion(t *testing.T) {
 	code, out, _ := runCmd(t, "", "--version")
-	if code != exitOK || !strings.HasPrefix(out, "convtag ") {
+	if code != exitOK || !strings.HasPrefix(out, "convtag "+version+"\n") {
 		t.Fatalf("--version: code %d, out %q", code, out)
+	}
+	code, word, _ := runCmd(t, "", "version")
+	if code != exitOK || word != out {
+		t.Fatalf("version: code %d, out %q; --version gave %q", code, word, out)
+	}
+	for _, want := range []string{
+		"\nrevision: ",
+		"\ngo:       " + runtime.Version() + " " + runtime.GOOS + "/" + runtime.GOARCH + "\n",
+		"\nkernels:  " + model.KernelName() + "\n",
+	} {
+		if !strings.Contains(out, want) {
+			t.Errorf("version output %q lacks %q", out, want)
+		}
+	}
+	// The kernel name is one the CPU can run: avx512 only with AVX-512F,
+	// and so on (golang.org/x/sys/cpu, independent of the model package).
+	switch k := model.KernelName(); {
+	case k == "avx512" && !cpu.X86.HasAVX512F, k == "avx2" && !cpu.X86.HasAVX2:
+		t.Errorf("kernels %s on a CPU without them", k)
+	case k != "avx512" && k != "avx2" && k != "generic":
+		t.Errorf("unknown kernel name %q", k)
+	}
+}
+
+// TestCommandWordsAreNotFiles: a first word that reads as a command and
+// names no file is a usage error listing the commands, never a missing
+// input of tag (which could go on to create tag's -o file).
+func TestCommandWordsAreNotFiles(t *testing.T) {
+	dir := t.TempDir()
+	keep := filepath.Join(dir, "keep.jsonl")
+	if err := os.WriteFile(keep, []byte("precious\n"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	for _, word := range []string{"run", "classify-all", "predict"} {
+		code, out, errs := runCmd(t, "", word, "-o", keep)
+		if code != exitUsage || out != "" || !strings.Contains(errs, "unknown command \""+word+"\"") || !strings.Contains(errs, "train") {
+			t.Errorf("%s: exit %d, out %q, stderr %q", word, code, out, errs)
+		}
+	}
+	if b, _ := os.ReadFile(keep); string(b) != "precious\n" {
+		t.Errorf("-o file now holds %q", b)
+	}
+	// A file whose name reads like a word is still tag's input.
+	t.Chdir(dir)
+	if err := os.WriteFile("notes", []byte("hello there\n"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if code, out, errs := runCmd(t, "", "notes"); code != exitOK || !strings.HasSuffix(out, "\thello there\n") {
+		t.Errorf("notes: exit %d, out %q, stderr %q", code, out, errs)
 	}
 }
 
@@ -54,7 +107,7 @@ func TestHelpHasExamples(t *testing.T) {
 	}
 }
 
-func TestCompletion(t *testing.T) {
+func TestCompletionScript(t *testing.T) {
 	code, out, _ := runCmd(t, "", "completion", "bash")
 	if code != exitOK || !strings.Contains(out, "convtag") {
 		t.Fatalf("completion bash: code %d", code)
@@ -69,7 +122,7 @@ func TestDefaultToTag(t *testing.T) {
 		{"log.jsonl", "tag log.jsonl"},
 		{"inspect m", "inspect m"},
 		{"--help", "--help"},
-		{"--version", "--version"},
+		{"--version", "version"},
 	} {
 		var args []string
 		if tc.in != "" {
