@@ -91,8 +91,8 @@ type cutter struct {
 	gen     uint64
 	tagger  *taggerState
 	held    *heldTagger // the Switch's Tagger behind tagger, if any
-	stopped bool      // ended by stop or abort, not by the end of input
-	since   time.Time // when cur got its first whole line
+	stopped bool        // ended by stop or abort, not by the end of input
+	since   time.Time   // when cur got its first whole line
 }
 
 func (c *cutter) take() *block {
