@@ -105,17 +105,31 @@ var readLimit int64 = MaxReadSize
 
 // readFile is the portable way to get a file's bytes, and Open's fallback.
 // It reads at most readLimit bytes and one more, to tell a file of exactly
-// the limit from a longer one.
+// the limit from a longer one. A header length that ParseContainer would
+// refuse (zero, as /dev/zero gives, or over MaxHeader) stops the read after
+// those 8 bytes, which Load then rejects with the container's own error.
 func readFile(path string) ([]byte, func() error, error) {
 	f, err := os.Open(path)
 	if err != nil {
 		return nil, nil, err
 	}
 	defer f.Close()
-	b, err := io.ReadAll(io.LimitReader(f, readLimit+1))
+	head := make([]byte, 8)
+	k, err := io.ReadFull(f, head)
+	if err != nil {
+		if err == io.EOF || err == io.ErrUnexpectedEOF {
+			return head[:k], nil, nil // too short: Load says so
+		}
+		return nil, nil, err
+	}
+	if n := binary.LittleEndian.Uint64(head); n == 0 || n > MaxHeader {
+		return head, nil, nil
+	}
+	rest, err := io.ReadAll(io.LimitReader(f, readLimit+1-int64(len(head))))
 	if err != nil {
 		return nil, nil, err
 	}
+	b := append(head, rest...)
 	if int64(len(b)) > readLimit {
 		return nil, nil, fmt.Errorf("%s: more than %d bytes, too long for a model file (one that cannot be memory-mapped is read whole)", path, readLimit)
 	}
