@@ -91,8 +91,13 @@ and JSON records without the text key pass through unchanged. With --keep,
 untagged records are left out too.
 
 Signals: SIGINT and SIGTERM stop after writing whole lines, exit status 1.
-SIGHUP reopens the model file between two blocks (a bad file is reported and
-the old model kept) and reopens the --output file for appending.
+SIGHUP reopens the model file between two blocks (a file that fails any
+check of inspect --verify is reported and the old model kept) and reopens
+the --output file for appending. The model file is memory-mapped: replace
+it by rename (mv), as train -o does, never by writing over it. An in-place
+write changes or removes pages under the running filter: a shorter file
+stops it with exit status 1 after the whole records tagged so far, and a
+same-size overwrite would switch the model in the middle of a block.
 
 ` + exitHelp,
 		Example: `  convtag tag chat.jsonl > tagged.jsonl
