@@ -11,8 +11,9 @@ import (
 
 // mapFile maps the file at path read-only and shared, so processes that
 // open the same model share its pages. It returns the bytes and the
-// function that unmaps them; what is not a regular file is read instead. An empty file is not mapped (mmap refuses
-// length zero); the loader then rejects it as too short.
+// function that unmaps them; what is not a regular file is read instead
+// (readFile, at most MaxReadSize bytes). An empty file is not mapped (mmap
+// refuses length zero); the loader then rejects it as too short.
 func mapFile(path string) ([]byte, func() error, error) {
 	f, err := os.Open(path)
 	if err != nil {

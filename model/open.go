@@ -5,6 +5,7 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"io"
 	"math"
 	"math/bits"
 	"os"
@@ -72,7 +73,11 @@ var littleEndian = func() bool {
 //
 // The mapping stays valid while the file is replaced (Save writes a new
 // file and renames it), but truncating the file in place while it is
-// mapped would make the process fault: never do that.
+// mapped makes a read of the lost pages fault (SIGBUS), and a same-size
+// overwrite changes the model under its readers: never do either. A reader
+// that must survive that runs with debug.SetPanicOnFault, as the stream
+// workers do. A file that cannot be mapped is read, at most MaxReadSize
+// bytes.
 func Open(path string) (*Model, error) {
 	b, unmap, err := mapFile(path)
 	if err != nil {
@@ -89,10 +94,46 @@ func Open(path string) (*Model, error) {
 	return m, nil
 }
 
+// MaxReadSize is the most Open reads from a model file it does not map
+// (a pipe or device, or any file where there is no mmap): a model is read
+// whole, so a source that never ends, such as /dev/zero, must not be
+// read forever.
+const MaxReadSize = 4 << 30
+
+// readLimit is MaxReadSize; tests lower it.
+var readLimit int64 = MaxReadSize
+
 // readFile is the portable way to get a file's bytes, and Open's fallback.
+// It reads at most readLimit bytes and one more, to tell a file of exactly
+// the limit from a longer one. A header length that ParseContainer would
+// refuse (zero, as /dev/zero gives, or over MaxHeader) stops the read after
+// those 8 bytes, which Load then rejects with the container's own error.
 func readFile(path string) ([]byte, func() error, error) {
-	b, err := os.ReadFile(path)
-	return b, nil, err
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, nil, err
+	}
+	defer f.Close()
+	head := make([]byte, 8)
+	k, err := io.ReadFull(f, head)
+	if err != nil {
+		if err == io.EOF || err == io.ErrUnexpectedEOF {
+			return head[:k], nil, nil // too short: Load says so
+		}
+		return nil, nil, err
+	}
+	if n := binary.LittleEndian.Uint64(head); n == 0 || n > MaxHeader {
+		return head, nil, nil
+	}
+	rest, err := io.ReadAll(io.LimitReader(f, readLimit+1-int64(len(head))))
+	if err != nil {
+		return nil, nil, err
+	}
+	b := append(head, rest...)
+	if int64(len(b)) > readLimit {
+		return nil, nil, fmt.Errorf("%s: more than %d bytes, too long for a model file (one that cannot be memory-mapped is read whole)", path, readLimit)
+	}
+	return b, nil, nil
 }
 
 // Load checks the model file held in b and returns a model whose tensors

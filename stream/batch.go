@@ -47,8 +47,9 @@ type block struct {
 	raw, rawFirst, rawEnd bool
 
 	tagger *taggerState
-	reopen bool  // reopen the output file before writing this block
-	err    error // input error, reported after the block's lines
+	held   *heldTagger // the Switch's Tagger behind tagger, with a reference for this block; or nil
+	reopen bool        // reopen the output file before writing this block
+	err    error       // input error, reported after the block's lines
 
 	// Filled in by the worker.
 	out, rej []byte
@@ -56,6 +57,7 @@ type block struct {
 	n        counts
 	tags     []int64 // per label, then unsure
 	errs     []lineErr
+	fault    *FaultError // the Tagger's memory faulted: the run ends before this block
 }
 
 func (b *block) reset() {
@@ -88,9 +90,9 @@ type cutter struct {
 	seq     uint64
 	gen     uint64
 	tagger  *taggerState
-	set     *Tagger   // the Switch's value behind tagger, if any
-	stopped bool      // ended by stop or abort, not by the end of input
-	since   time.Time // when cur got its first whole line
+	held    *heldTagger // the Switch's Tagger behind tagger, if any
+	stopped bool        // ended by stop or abort, not by the end of input
+	since   time.Time   // when cur got its first whole line
 }
 
 func (c *cutter) take() *block {
@@ -109,13 +111,17 @@ func (c *cutter) send(b *block) bool {
 	b.seq = c.seq
 	c.seq++
 	if sw := c.cfg.sw; sw != nil {
-		if g := sw.gen.Load(); g != c.gen {
+		h, g := sw.acquire()
+		if g != c.gen {
 			c.gen = g
 			b.reopen = true
-			if t := sw.tagger.Load(); t != nil && t != c.set {
-				c.set = t
-				c.tagger = newTaggerState(*t, c.cfg)
+		}
+		if h != nil {
+			if h != c.held {
+				c.held = h
+				c.tagger = newTaggerState(h.t, c.cfg)
 			}
+			b.held = h // the writer drops this reference after writing b
 		}
 	}
 	b.tagger = c.tagger

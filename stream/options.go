@@ -3,7 +3,7 @@ package stream
 import (
 	"fmt"
 	"io"
-	"sync/atomic"
+	"sync"
 	"time"
 )
 
@@ -184,21 +184,49 @@ type Options struct {
 
 // Switch lets a caller replace the Tagger of a running pipeline, for example
 // on SIGHUP. Its zero value is ready to use and safe for concurrent use.
+//
+// A Switch owns the Taggers given to Set: one that is a Releaser is
+// released once it has been replaced and the last block tagged with it has
+// been written (see Releaser). The Tagger current when Run ends stays held.
+// Options.Tagger stays the caller's; Run uses it only while the Switch
+// holds no Tagger, so a Tagger Set before Run is the one Run starts with.
 type Switch struct {
-	gen    atomic.Uint64
-	tagger atomic.Pointer[Tagger]
+	mu  sync.Mutex
+	gen uint64      // Sets so far
+	cur *heldTagger // nil until the first Set with a Tagger
 }
 
 // Set makes t (when not nil) the Tagger for every block cut after Set
 // returns, and asks the pipeline to reopen its output file before writing
 // that block (after everything before it was written and flushed), as log
 // rotation needs. Records are neither lost nor reordered: the switch falls
-// between two blocks. Set(nil) only reopens the output.
+// between two blocks. Set(nil) only reopens the output. Give each Tagger to
+// Set once: the Switch releases it when it is replaced.
 func (s *Switch) Set(t Tagger) {
+	var old *heldTagger
+	s.mu.Lock()
 	if t != nil {
-		s.tagger.Store(&t)
+		h := &heldTagger{t: t}
+		h.refs.Store(1) // the Switch's, while h is current
+		old, s.cur = s.cur, h
 	}
-	s.gen.Add(1)
+	s.gen++
+	s.mu.Unlock()
+	if old != nil {
+		old.release()
+	}
+}
+
+// acquire returns the current Tagger with one reference taken for the
+// caller (nil when the Switch holds none) and the count of Sets so far,
+// read together.
+func (s *Switch) acquire() (*heldTagger, uint64) {
+	s.mu.Lock()
+	defer s.mu.Unlock()
+	if s.cur != nil {
+		s.cur.refs.Add(1)
+	}
+	return s.cur, s.gen
 }
 
 // Stats count what Run did.

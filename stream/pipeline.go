@@ -507,7 +507,21 @@ func Run(ctx context.Context, opts Options, inputs []string, stdin io.Reader, st
 	if len(inputs) == 0 {
 		inputs = []string{"-"}
 	}
-	first := newTaggerState(opts.Tagger, cfg)
+	startTagger, startGen := opts.Tagger, uint64(0)
+	var startHeld *heldTagger
+	if sw := cfg.sw; sw != nil {
+		startHeld, startGen = sw.acquire()
+		if startHeld != nil {
+			startTagger = startHeld.t
+		}
+	}
+	first := newTaggerState(startTagger, cfg)
+	if startHeld != nil {
+		// Held only while reading its labels: the cutter takes a
+		// reference of its own for each block, and keeps startHeld only
+		// to know that first was made from it.
+		startHeld.release()
+	}
 	if len(first.labels) < 2 {
 		return stats, errors.New("stream: tagger has no labels")
 	}
@@ -532,18 +546,17 @@ func Run(ctx context.Context, opts Options, inputs []string, stdin io.Reader, st
 
 	window := max(2, cfg.jobs*blocksPerWorker)
 	free := make(chan *block, window)
-	for range window {
+	all := make([]*block, window)
+	for i := range all {
 		// Sized so that a full block does not grow by doubling.
-		free <- &block{lastNL: -1, in: make([]byte, 0, cfg.blockSize+chunkSize)}
+		all[i] = &block{lastNL: -1, in: make([]byte, 0, cfg.blockSize+chunkSize)}
+		free <- all[i]
 	}
 	abortCtx, abort := context.WithCancelCause(context.Background())
 	defer abort(nil)
 	work := make(chan *block, cfg.jobs)
 	c := &cutter{cfg: cfg, chunks: chunks, chunkPool: chunkPool, free: free, work: work,
-		stop: ctx.Done(), abort: abortCtx.Done(), tagger: first}
-	if sw := cfg.sw; sw != nil {
-		c.gen = sw.gen.Load()
-	}
+		stop: ctx.Done(), abort: abortCtx.Done(), tagger: first, held: startHeld, gen: startGen}
 	var wg sync.WaitGroup
 	wg.Go(c.run)
 
@@ -556,6 +569,9 @@ func Run(ctx context.Context, opts Options, inputs []string, stdin io.Reader, st
 		werr     error
 	)
 	emit := func(b *block) error {
+		if b.fault != nil {
+			return b.fault
+		}
 		if b.reopen {
 			if err := out.reopen(); err != nil {
 				return err
@@ -612,11 +628,15 @@ func Run(ctx context.Context, opts Options, inputs []string, stdin io.Reader, st
 		return out.flush()
 	}
 	recycle := func(b *block) {
+		if b.held != nil {
+			b.held.release() // b is written: the last use of its Tagger
+		}
 		b.reset()
 		free <- b
 	}
 
 	if cfg.jobs == 1 {
+		restore := panicOnFault()
 		wk := newWorker(cfg)
 		for {
 			var b *block
@@ -632,20 +652,22 @@ func Run(ctx context.Context, opts Options, inputs []string, stdin io.Reader, st
 			if werr != nil || !ok {
 				break
 			}
-			wk.process(b)
+			wk.processSafe(b)
 			if werr = emit(b); werr != nil {
 				break
 			}
 			recycle(b)
 		}
+		restore()
 	} else {
 		done := make(chan *block, window)
 		var workers sync.WaitGroup
 		for range cfg.jobs {
 			workers.Go(func() {
+				defer panicOnFault()()
 				wk := newWorker(cfg)
 				for b := range work {
-					wk.process(b)
+					wk.processSafe(b)
 					select {
 					case done <- b:
 					case <-abortCtx.Done():
@@ -684,8 +706,17 @@ func Run(ctx context.Context, opts Options, inputs []string, stdin io.Reader, st
 		abort(werr)
 	}
 	wg.Wait()
-	if werr == nil {
-		if err := flush(); err != nil {
+	// Blocks that were never written hold their Tagger still.
+	for _, b := range all {
+		if b.held != nil {
+			b.held.release()
+			b.held = nil
+		}
+	}
+	var fault *FaultError
+	if werr == nil || errors.As(werr, &fault) {
+		// After a fault the blocks before it are written: flush them.
+		if err := flush(); err != nil && werr == nil {
 			werr = err
 		}
 	}

@@ -24,10 +24,12 @@ import (
 func init() { commands = append(commands, newTagCmd) }
 
 // newTagger adapts m to the pipeline: with why > 0 its scorers also
-// explain each tag (see whyTagger), otherwise they do no such work.
+// explain each tag (see whyTagger), otherwise they do no such work. The
+// tagger owns m: the pipeline's Switch releases it, closing (unmapping) m,
+// once a reload has replaced it and the last block it tagged is written.
 func newTagger(m *model.Model, why int) stream.Tagger {
 	if why > 0 {
-		return whyTagger{m: m, n: why}
+		return releasingWhy{whyTagger{m: m, n: why}}
 	}
 	return modelTagger{m}
 }
@@ -38,6 +40,14 @@ type modelTagger struct{ m *model.Model }
 func (t modelTagger) Labels() []string { return t.m.Labels }
 
 func (t modelTagger) NewScorer() stream.Scorer { return predictorScorer{t.m.NewPredictor()} }
+
+// Release unmaps the model (stream.Releaser); no scorer is used after it.
+func (t modelTagger) Release() { t.m.Close() }
+
+// releasingWhy is a whyTagger that owns its model, as modelTagger does.
+type releasingWhy struct{ whyTagger }
+
+func (t releasingWhy) Release() { t.m.Close() }
 
 type predictorScorer struct{ p *model.Predictor }
 
@@ -81,8 +91,13 @@ and JSON records without the text key pass through unchanged. With --keep,
 untagged records are left out too.
 
 Signals: SIGINT and SIGTERM stop after writing whole lines, exit status 1.
-SIGHUP reopens the model file between two blocks (a bad file is reported and
-the old model kept) and reopens the --output file for appending.
+SIGHUP reopens the model file between two blocks (a file that fails any
+check of inspect --verify is reported and the old model kept) and reopens
+the --output file for appending. The model file is memory-mapped: replace
+it by rename (mv), as train -o does, never by writing over it. An in-place
+write changes or removes pages under the running filter: a shorter file
+stops it with exit status 1 after the whole records tagged so far, and a
+same-size overwrite would switch the model in the middle of a block.
 
 ` + exitHelp,
 		Example: `  convtag tag chat.jsonl > tagged.jsonl
@@ -159,6 +174,7 @@ the old model kept) and reopens the --output file for appending.
 			defer stop()
 			go func() { <-ctx.Done(); stop() }() // a second signal kills at once
 			o.Switch = new(stream.Switch)
+			o.Switch.Set(o.Tagger) // the Switch releases it when a reload replaces it
 			hup := make(chan os.Signal, 1)
 			signal.Notify(hup, syscall.SIGHUP)
 			defer signal.Stop(hup)
@@ -233,31 +249,6 @@ func splitTags(list []string) []string {
 		}
 	}
 	return out
-}
-
-// reloadOnHangup reopens the model file on each SIGHUP and hands it to the
-// running pipeline; a file that does not load is reported and the current
-// model kept. Either way the output file is reopened.
-func reloadOnHangup(a *app, path string, why int, sw *stream.Switch, hup <-chan os.Signal, done <-chan struct{}) {
-	for {
-		select {
-		case <-done:
-			return
-		case <-hup:
-		}
-		m, err := a.loadModel(path)
-		name := path
-		if name == "" {
-			name = "the built-in model"
-		}
-		if err != nil {
-			fmt.Fprintf(a.stderr, "convtag: reload %s: %v; keeping the current model\n", name, err)
-			sw.Set(nil)
-			continue
-		}
-		sw.Set(newTagger(m, why))
-		fmt.Fprintf(a.stderr, "convtag: reloaded %s\n", name)
-	}
 }
 
 // newProgress returns a progress bar on stderr, or nil when there should be
