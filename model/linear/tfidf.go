@@ -28,19 +28,31 @@ type Tokens interface {
 // with none gives an empty vector. With a dst of enough capacity it does
 // not allocate.
 func (v *Vocabulary) TfIdf(dst []Entry, tokens []string) []Entry {
-	return tfidf(v, dst[:0], len(tokens), func(i int) string { return tokens[i] })
+	return tfidf[string](v, dst[:0], strs(tokens))
 }
 
 // TfIdfOf is TfIdf for tokens read through the Tokens interface.
 func (v *Vocabulary) TfIdfOf(dst []Entry, tokens Tokens) []Entry {
-	return tfidf(v, dst[:0], tokens.Len(), tokens.At)
+	return tfidf[[]byte](v, dst[:0], tokens)
 }
 
-func tfidf[S ~string | ~[]byte](v *Vocabulary, dst []Entry, n int, at func(int) S) []Entry {
+// source is what tfidf reads tokens from; a type parameter rather than a
+// func value, so that no closure escapes and scoring stays allocation-free.
+type source[S ~string | ~[]byte] interface {
+	Len() int
+	At(i int) S
+}
+
+type strs []string
+
+func (s strs) Len() int        { return len(s) }
+func (s strs) At(i int) string { return s[i] }
+
+func tfidf[S ~string | ~[]byte, T source[S]](v *Vocabulary, dst []Entry, src T) []Entry {
 	var prev S
 	var hprev uint64
-	for i := range n {
-		t := at(i)
+	for i := range src.Len() {
+		t := src.At(i)
 		h := hashMore(fnvOffset, t)
 		if f := lookup(v, h, t, t[:0], false); f >= 0 {
 			dst = append(dst, Entry{Feature: int32(f), Value: 1})
