@@ -337,7 +337,10 @@ func runEval(a *app, f *evalFlags, args []string) error {
 	if f.plots != "" {
 		ps := plots.Set{Title: filepath.Base(name), Report: rep}
 		for c, l := range m.Labels {
-			pts, ap := metrics.PRCurve(s.gold, probs, c)
+			pts, ap, err := metrics.PRCurve(s.gold, probs, c)
+			if err != nil {
+				return withCode(exitFailure, fmt.Errorf("eval: %w", err))
+			}
 			ps.Curves = append(ps.Curves, plots.Curve{Label: l, Points: pts, AveragePrecision: ap})
 		}
 		if sum, ok := m.Meta[model.MetaTraining]; ok {
