@@ -8,6 +8,7 @@ import (
 	"math"
 	"math/bits"
 	"os"
+	"slices"
 	"strconv"
 	"strings"
 	"unsafe"
@@ -162,10 +163,10 @@ func decodeMeta(meta map[string]string, key string, v any) error {
 // the model over its tensors.
 func assemble(meta map[string]string, tensors []Tensor) (*Model, error) {
 	if f, ok := meta[MetaFormat]; !ok || f != FormatName {
-		return nil, fmt.Errorf("%w: format %q, want %q", ErrNotModel, f, FormatName)
+		return nil, fmt.Errorf("%w: format %s, want %q", ErrNotModel, quoteCapped(f), FormatName)
 	}
 	if v := meta[MetaFormatVersion]; v != strconv.Itoa(FormatVersion) {
-		return nil, fmt.Errorf("%w: %q, this build reads %d", ErrVersion, v, FormatVersion)
+		return nil, fmt.Errorf("%w: %s, this build reads %d", ErrVersion, quoteCapped(v), FormatVersion)
 	}
 	m := &Model{Meta: meta}
 	if err := decodeMeta(meta, MetaConfig, &m.Config); err != nil {
@@ -187,7 +188,7 @@ func assemble(meta map[string]string, tensors []Tensor) (*Model, error) {
 		return nil, fmt.Errorf("%w: need at least 2 labels, have %d", ErrMetadata, len(m.Labels))
 	}
 	if i := firstDuplicate(m.Labels); i >= 0 {
-		return nil, fmt.Errorf("%w: duplicate label %q", ErrMetadata, m.Labels[i])
+		return nil, fmt.Errorf("%w: duplicate label %s", ErrMetadata, quoteCapped(m.Labels[i]))
 	}
 	if c, ok := meta[MetaChecksum]; ok {
 		if _, err := parseChecksum(c); err != nil {
@@ -202,10 +203,21 @@ func assemble(meta map[string]string, tensors []Tensor) (*Model, error) {
 	if err := s.build(m); err != nil {
 		return nil, err
 	}
+	var extra []string
 	for name := range s.byName {
 		if !s.used[name] {
-			return nil, formatErr(name, ErrUnexpectedTensor, "not part of this model's config")
+			extra = append(extra, name)
 		}
+	}
+	if len(extra) > 0 {
+		// Sorted, so that the same file always gives the same message
+		// (map order changes from run to run).
+		slices.Sort(extra)
+		more := ""
+		if len(extra) > 1 {
+			more = fmt.Sprintf(" (and %d more unexpected tensors)", len(extra)-1)
+		}
+		return nil, formatErr(extra[0], ErrUnexpectedTensor, "not part of this model's config%s", more)
 	}
 	m.tok = NewTokenizer(m.Tokenizer)
 	return m, nil
