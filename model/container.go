@@ -58,6 +58,8 @@ var (
 	ErrSchema           = errors.New("model: tensor does not fit the model")
 	ErrVocab            = errors.New("model: bad vocabulary")
 	ErrNotFinite        = errors.New("model: weight is NaN or infinite")
+	ErrForward          = errors.New("model: forward pass gives no probabilities")
+	ErrBaseline         = errors.New("model: bad baseline")
 	ErrNoChecksum       = errors.New("model: no checksum")
 	ErrChecksum         = errors.New("model: checksum mismatch")
 )

@@ -399,19 +399,64 @@ func checkOffsets(offs []int64, blobLen int) error {
 	return nil
 }
 
-// checkIndex checks that every index entry is 0 (empty) or a word number
-// plus one, so that Vocab.Lookup stays in bounds.
-func checkIndex(index []int32, nWords int) error {
+// checkIndex checks the vocabulary's index: every entry is 0 (empty) or a
+// word number plus one, so that Vocab.Lookup stays in bounds; every word is
+// in it exactly once, so that (the index being larger than the vocabulary)
+// empty slots remain to end an unknown word's probe, which would otherwise
+// read the whole table on every lookup; and every word sits on the probe
+// chain from its home slot with no empty slot between, so that Lookup finds
+// it. It costs one pass over the index and one hash of every word.
+func checkIndex(v *Vocab) error {
+	index, nWords := v.index, v.Len()
 	var hi uint32 // the largest entry, negative ones counting as huge
 	for _, e := range index {
 		hi = max(hi, uint32(e))
 	}
-	if hi <= uint32(nWords) {
-		return nil
+	if hi > uint32(nWords) {
+		for i, e := range index {
+			if uint32(e) > uint32(nWords) {
+				return formatErr(TensorVocabIndex, ErrVocab, "entry %d is %d, outside 0..%d", i, e, nWords)
+			}
+		}
 	}
+	seen := make([]uint64, (nWords+63)/64)
+	empty := -1
 	for i, e := range index {
-		if uint32(e) > uint32(nWords) {
-			return formatErr(TensorVocabIndex, ErrVocab, "entry %d is %d, outside 0..%d", i, e, nWords)
+		if e == 0 {
+			empty = i
+			continue
+		}
+		w := int(e - 1)
+		if seen[w/64]&(1<<(w%64)) != 0 {
+			return formatErr(TensorVocabIndex, ErrVocab, "word %d (%s) is in the index twice, the second time at entry %d", w, quoteCapped(string(v.Word(w))), i)
+		}
+		seen[w/64] |= 1 << (w % 64)
+	}
+	for w := range nWords {
+		if seen[w/64]&(1<<(w%64)) == 0 {
+			return formatErr(TensorVocabIndex, ErrVocab, "word %d (%s) is not in the index", w, quoteCapped(string(v.Word(w))))
+		}
+	}
+	if empty < 0 { // every word once in more slots than words: cannot happen
+		return formatErr(TensorVocabIndex, ErrVocab, "no empty entry")
+	}
+	// Walk the table once, starting after an empty slot, counting the
+	// filled slots since the last empty one: a word at distance d from
+	// its home slot is reachable when d < that count.
+	mask := len(index) - 1
+	run := 0
+	for k := 1; k <= len(index); k++ {
+		s := (empty + k) & mask
+		e := index[s]
+		if e == 0 {
+			run = 0
+			continue
+		}
+		run++
+		w := int(e - 1)
+		home := int(Hash(v.Word(w)) & uint64(mask))
+		if (s-home)&mask >= run {
+			return formatErr(TensorVocabIndex, ErrVocab, "word %d (%s) is at entry %d, which its lookup from entry %d never reaches", w, quoteCapped(string(v.Word(w))), s, home)
 		}
 	}
 	return nil

@@ -162,3 +162,63 @@ func TestEvalErrorLinesCapped(t *testing.T) {
 		}
 	}
 }
+
+// TestInspectVerify: inspect --verify reports, with exit 2 and the file's
+// name, what tag and eval could not use, including a max_tokens beyond
+// the limit (refused as the file is opened).
+func TestInspectVerify(t *testing.T) {
+	dir := t.TempDir()
+	overflow := evalVariant(t, dir, "overflow.safetensors", func(m *model.Model) {
+		for i := range m.Convs {
+			for j := range m.Convs[i].B {
+				m.Convs[i].B[j] = 1e30
+			}
+		}
+		for i := range m.Out.W {
+			m.Out.W[i] = 3e38
+		}
+	})
+	garbage := evalVariant(t, dir, "garbage-baseline.safetensors", func(m *model.Model) { m.Baseline = []byte("not a baseline") })
+	huge := filepath.Join(dir, "huge-max-tokens.safetensors")
+	b, err := os.ReadFile(fixture(t))
+	if err != nil {
+		t.Fatal(err)
+	}
+	meta, tensors, err := model.ParseContainer(b)
+	if err != nil {
+		t.Fatal(err)
+	}
+	meta[model.MetaTokenizer] = `{"keep_punct":false,"max_tokens":1073741824,"no_placeholders":false}`
+	var buf bytes.Buffer
+	if err := model.EncodeContainer(&buf, meta, tensors); err != nil {
+		t.Fatal(err)
+	}
+	if err := os.WriteFile(huge, buf.Bytes(), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	for _, c := range []struct {
+		name, path, msg string
+		code            int
+	}{
+		{"good", evalModel, "", exitOK},
+		{"overflowing weights", overflow, "forward pass gives no probabilities", exitUsage},
+		{"garbage baseline", garbage, "bad baseline", exitUsage},
+		{"huge max_tokens", huge, "max_tokens 1073741824 out of range", exitUsage},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			code, out, errs := runCmd(t, "", "inspect", "--verify", c.path)
+			if code != c.code {
+				t.Fatalf("exit %d, want %d; stderr %q", code, c.code, errs)
+			}
+			if c.code == exitOK {
+				if !strings.Contains(out, "verified:") {
+					t.Errorf("stdout lacks the verified line: %q", out)
+				}
+				return
+			}
+			if !strings.HasPrefix(errs, "convtag: model: "+c.path+": ") || !strings.Contains(errs, c.msg) || strings.Count(errs, "\n") != 1 {
+				t.Errorf("stderr %q, want one line naming %s and %q", errs, c.path, c.msg)
+			}
+		})
+	}
+}
