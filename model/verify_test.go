@@ -117,3 +117,19 @@ func TestMaxTokensRefusedAtOpen(t *testing.T) {
 		t.Fatalf("Load: %v", err)
 	}
 }
+
+// TestLookupFullIndexEnds: Lookup of an unknown word in an index with no
+// empty slot (which Verify refuses, but Open does not read) still ends,
+// after one pass over the table, instead of probing for ever.
+func TestLookupFullIndexEnds(t *testing.T) {
+	v := NewVocab([]string{"pier", "tide", "gull"}, 4)
+	for i := range v.index {
+		v.index[i] = int32(1 + i%3)
+	}
+	if got := v.Lookup([]byte("lighthouse")); got != -1 {
+		t.Errorf("Lookup of an unknown word = %d, want -1", got)
+	}
+	if got := v.Lookup([]byte("gull")); got != 2 {
+		t.Errorf("Lookup(gull) = %d, want 2", got)
+	}
+}
