@@ -24,6 +24,16 @@ import (
 // implementation of the format uses the same 100 MB cap.
 const MaxHeader = 100_000_000
 
+// MaxEntries is the most tensors, and the most metadata keys, a header
+// may list. A convtag model has at most 57 tensors (3 vocabulary tensors,
+// the embedding, a weight, a bias and a fold table for each of at most 16
+// widths, 2 hidden, 2 output, the baseline) and about 10 metadata keys;
+// 4096 leaves room for any model a later version may write and for other
+// safetensors files, while a crafted header of a million entries is
+// refused after reading a few hundred kilobytes instead of seconds of
+// parsing and hundreds of megabytes of tensor records.
+const MaxEntries = 4096
+
 // metadataKey is the header key of the string map; no tensor may use it.
 const metadataKey = "__metadata__"
 
@@ -34,6 +44,7 @@ var (
 	ErrHeaderTooLarge   = errors.New("model: header too large")
 	ErrTruncated        = errors.New("model: file truncated")
 	ErrHeader           = errors.New("model: malformed header")
+	ErrEntries          = errors.New("model: too many header entries")
 	ErrDuplicateKey     = errors.New("model: duplicate key in header")
 	ErrDType            = errors.New("model: unknown dtype")
 	ErrShape            = errors.New("model: shape does not match byte range")
@@ -47,6 +58,8 @@ var (
 	ErrSchema           = errors.New("model: tensor does not fit the model")
 	ErrVocab            = errors.New("model: bad vocabulary")
 	ErrNotFinite        = errors.New("model: weight is NaN or infinite")
+	ErrForward          = errors.New("model: forward pass gives no probabilities")
+	ErrBaseline         = errors.New("model: bad baseline")
 	ErrNoChecksum       = errors.New("model: no checksum")
 	ErrChecksum         = errors.New("model: checksum mismatch")
 )
@@ -70,7 +83,7 @@ func (e *FormatError) Error() string {
 	}
 	if e.Tensor != "" {
 		b.WriteString("tensor ")
-		b.WriteString(strconv.Quote(e.Tensor))
+		b.WriteString(quoteCapped(e.Tensor))
 		b.WriteString(": ")
 	}
 	if e.Err == nil {
@@ -83,6 +96,23 @@ func (e *FormatError) Error() string {
 }
 
 func (e *FormatError) Unwrap() error { return e.Err }
+
+// quoteCap is how many bytes of a value from the file an error quotes: a
+// crafted name or label may be megabytes long, an error is one line.
+const quoteCap = 200
+
+// quoteCapped quotes s as strconv.Quote does, cut after quoteCap bytes (at
+// a rune boundary) and then marked with "…".
+func quoteCapped(s string) string {
+	if len(s) <= quoteCap {
+		return strconv.Quote(s)
+	}
+	cut := quoteCap
+	for cut > 0 && !utf8.RuneStart(s[cut]) {
+		cut--
+	}
+	return strconv.Quote(s[:cut]) + "…"
+}
 
 func formatErr(tensor string, sentinel error, format string, args ...any) *FormatError {
 	err := sentinel
@@ -137,7 +167,8 @@ func byteSize(shape []int, size int) (n uint64, ok bool) {
 
 // ParseContainer parses a safetensors file held in b. The tensors come in
 // header order, their Data aliasing b. It checks, in this order: the header
-// length against MaxHeader and len(b); that the header is UTF-8 JSON of the
+// length against MaxHeader and len(b); at most MaxEntries tensors and
+// metadata keys, as it reads them; that the header is UTF-8 JSON of the
 // specified form with no duplicate keys at any level; every dtype; every
 // shape against its byte range (with overflow checks); and that the byte
 // ranges, sorted, cover the data buffer exactly with no hole or overlap.
@@ -281,7 +312,7 @@ func describeToken(t json.Token) string {
 	case json.Delim:
 		return strconv.Quote(v.String())
 	case string:
-		return "string " + strconv.Quote(v)
+		return "string " + quoteCapped(v)
 	case json.Number:
 		return "number " + string(v)
 	case bool:
@@ -323,6 +354,9 @@ func parseHeader(h []byte, dataLen uint64) (meta map[string]string, tensors []Te
 			}
 			continue
 		}
+		if len(tensors) == MaxEntries {
+			return nil, nil, nil, formatErr(name, ErrEntries, "more than %d tensors", MaxEntries)
+		}
 		t, r, err := p.tensor(name, dataLen)
 		if err != nil {
 			return nil, nil, nil, err
@@ -357,7 +391,10 @@ func (p *headerParser) metadata() (map[string]string, *FormatError) {
 			return nil, err
 		}
 		if _, dup := meta[k]; dup {
-			return nil, formatErr(metadataKey, ErrDuplicateKey, "%q", k)
+			return nil, formatErr(metadataKey, ErrDuplicateKey, "%s", quoteCapped(k))
+		}
+		if len(meta) == MaxEntries {
+			return nil, formatErr(metadataKey, ErrEntries, "more than %d keys", MaxEntries)
 		}
 		v, err := p.str(metadataKey)
 		if err != nil {
@@ -383,7 +420,7 @@ func (p *headerParser) tensor(name string, dataLen uint64) (Tensor, [2]uint64, *
 		switch k {
 		case "dtype":
 			if haveDType {
-				return t, r, formatErr(name, ErrDuplicateKey, "%q", k)
+				return t, r, formatErr(name, ErrDuplicateKey, "%s", quoteCapped(k))
 			}
 			haveDType = true
 			if t.DType, err = p.str(name); err != nil {
@@ -391,7 +428,7 @@ func (p *headerParser) tensor(name string, dataLen uint64) (Tensor, [2]uint64, *
 			}
 		case "shape":
 			if haveShape {
-				return t, r, formatErr(name, ErrDuplicateKey, "%q", k)
+				return t, r, formatErr(name, ErrDuplicateKey, "%s", quoteCapped(k))
 			}
 			haveShape = true
 			if err := p.delim(name, '['); err != nil {
@@ -410,7 +447,7 @@ func (p *headerParser) tensor(name string, dataLen uint64) (Tensor, [2]uint64, *
 			}
 		case "data_offsets":
 			if haveOffsets {
-				return t, r, formatErr(name, ErrDuplicateKey, "%q", k)
+				return t, r, formatErr(name, ErrDuplicateKey, "%s", quoteCapped(k))
 			}
 			haveOffsets = true
 			if err := p.delim(name, '['); err != nil {
@@ -425,7 +462,7 @@ func (p *headerParser) tensor(name string, dataLen uint64) (Tensor, [2]uint64, *
 				return t, r, formatErr(name, ErrHeader, "data_offsets must be [begin, end]")
 			}
 		default:
-			return t, r, formatErr(name, ErrHeader, "unknown field %q", k)
+			return t, r, formatErr(name, ErrHeader, "unknown field %s", quoteCapped(k))
 		}
 	}
 	if err := p.delim(name, '}'); err != nil {
@@ -441,7 +478,7 @@ func (p *headerParser) tensor(name string, dataLen uint64) (Tensor, [2]uint64, *
 	}
 	size := DTypeSize(t.DType)
 	if size == 0 {
-		return t, r, formatErr(name, ErrDType, "%q", t.DType)
+		return t, r, formatErr(name, ErrDType, "%s", quoteCapped(t.DType))
 	}
 	if r[0] > r[1] || r[1] > dataLen {
 		return t, r, formatErr(name, ErrOffsets, "[%d, %d] outside the %d-byte data buffer", r[0], r[1], dataLen)

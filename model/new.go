@@ -21,7 +21,7 @@ func New(cfg Config, tok TokenizerSettings, labels []string, words []string, see
 		return nil, fmt.Errorf("model: need at least 2 labels, have %d", len(labels))
 	}
 	if i := firstDuplicate(labels); i >= 0 {
-		return nil, fmt.Errorf("model: duplicate label %q", labels[i])
+		return nil, fmt.Errorf("model: duplicate label %s", quoteCapped(labels[i]))
 	}
 	if i := firstDuplicate(words); i >= 0 {
 		return nil, fmt.Errorf("model: duplicate vocabulary word %q", words[i])

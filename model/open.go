@@ -9,6 +9,7 @@ import (
 	"math"
 	"math/bits"
 	"os"
+	"slices"
 	"strconv"
 	"strings"
 	"unsafe"
@@ -203,10 +204,10 @@ func decodeMeta(meta map[string]string, key string, v any) error {
 // the model over its tensors.
 func assemble(meta map[string]string, tensors []Tensor) (*Model, error) {
 	if f, ok := meta[MetaFormat]; !ok || f != FormatName {
-		return nil, fmt.Errorf("%w: format %q, want %q", ErrNotModel, f, FormatName)
+		return nil, fmt.Errorf("%w: format %s, want %q", ErrNotModel, quoteCapped(f), FormatName)
 	}
 	if v := meta[MetaFormatVersion]; v != strconv.Itoa(FormatVersion) {
-		return nil, fmt.Errorf("%w: %q, this build reads %d", ErrVersion, v, FormatVersion)
+		return nil, fmt.Errorf("%w: %s, this build reads %d", ErrVersion, quoteCapped(v), FormatVersion)
 	}
 	m := &Model{Meta: meta}
 	if err := decodeMeta(meta, MetaConfig, &m.Config); err != nil {
@@ -228,7 +229,7 @@ func assemble(meta map[string]string, tensors []Tensor) (*Model, error) {
 		return nil, fmt.Errorf("%w: need at least 2 labels, have %d", ErrMetadata, len(m.Labels))
 	}
 	if i := firstDuplicate(m.Labels); i >= 0 {
-		return nil, fmt.Errorf("%w: duplicate label %q", ErrMetadata, m.Labels[i])
+		return nil, fmt.Errorf("%w: duplicate label %s", ErrMetadata, quoteCapped(m.Labels[i]))
 	}
 	if c, ok := meta[MetaChecksum]; ok {
 		if _, err := parseChecksum(c); err != nil {
@@ -243,10 +244,21 @@ func assemble(meta map[string]string, tensors []Tensor) (*Model, error) {
 	if err := s.build(m); err != nil {
 		return nil, err
 	}
+	var extra []string
 	for name := range s.byName {
 		if !s.used[name] {
-			return nil, formatErr(name, ErrUnexpectedTensor, "not part of this model's config")
+			extra = append(extra, name)
 		}
+	}
+	if len(extra) > 0 {
+		// Sorted, so that the same file always gives the same message
+		// (map order changes from run to run).
+		slices.Sort(extra)
+		more := ""
+		if len(extra) > 1 {
+			more = fmt.Sprintf(" (and %d more unexpected tensors)", len(extra)-1)
+		}
+		return nil, formatErr(extra[0], ErrUnexpectedTensor, "not part of this model's config%s", more)
 	}
 	m.tok = NewTokenizer(m.Tokenizer)
 	return m, nil
@@ -428,19 +440,64 @@ func checkOffsets(offs []int64, blobLen int) error {
 	return nil
 }
 
-// checkIndex checks that every index entry is 0 (empty) or a word number
-// plus one, so that Vocab.Lookup stays in bounds.
-func checkIndex(index []int32, nWords int) error {
+// checkIndex checks the vocabulary's index: every entry is 0 (empty) or a
+// word number plus one, so that Vocab.Lookup stays in bounds; every word is
+// in it exactly once, so that (the index being larger than the vocabulary)
+// empty slots remain to end an unknown word's probe, which would otherwise
+// read the whole table on every lookup; and every word sits on the probe
+// chain from its home slot with no empty slot between, so that Lookup finds
+// it. It costs one pass over the index and one hash of every word.
+func checkIndex(v *Vocab) error {
+	index, nWords := v.index, v.Len()
 	var hi uint32 // the largest entry, negative ones counting as huge
 	for _, e := range index {
 		hi = max(hi, uint32(e))
 	}
-	if hi <= uint32(nWords) {
-		return nil
+	if hi > uint32(nWords) {
+		for i, e := range index {
+			if uint32(e) > uint32(nWords) {
+				return formatErr(TensorVocabIndex, ErrVocab, "entry %d is %d, outside 0..%d", i, e, nWords)
+			}
+		}
 	}
+	seen := make([]uint64, (nWords+63)/64)
+	empty := -1
 	for i, e := range index {
-		if uint32(e) > uint32(nWords) {
-			return formatErr(TensorVocabIndex, ErrVocab, "entry %d is %d, outside 0..%d", i, e, nWords)
+		if e == 0 {
+			empty = i
+			continue
+		}
+		w := int(e - 1)
+		if seen[w/64]&(1<<(w%64)) != 0 {
+			return formatErr(TensorVocabIndex, ErrVocab, "word %d (%s) is in the index twice, the second time at entry %d", w, quoteCapped(string(v.Word(w))), i)
+		}
+		seen[w/64] |= 1 << (w % 64)
+	}
+	for w := range nWords {
+		if seen[w/64]&(1<<(w%64)) == 0 {
+			return formatErr(TensorVocabIndex, ErrVocab, "word %d (%s) is not in the index", w, quoteCapped(string(v.Word(w))))
+		}
+	}
+	if empty < 0 { // every word once in more slots than words: cannot happen
+		return formatErr(TensorVocabIndex, ErrVocab, "no empty entry")
+	}
+	// Walk the table once, starting after an empty slot, counting the
+	// filled slots since the last empty one: a word at distance d from
+	// its home slot is reachable when d < that count.
+	mask := len(index) - 1
+	run := 0
+	for k := 1; k <= len(index); k++ {
+		s := (empty + k) & mask
+		e := index[s]
+		if e == 0 {
+			run = 0
+			continue
+		}
+		run++
+		w := int(e - 1)
+		home := int(Hash(v.Word(w)) & uint64(mask))
+		if (s-home)&mask >= run {
+			return formatErr(TensorVocabIndex, ErrVocab, "word %d (%s) is at entry %d, which its lookup from entry %d never reaches", w, quoteCapped(string(v.Word(w))), s, home)
 		}
 	}
 	return nil

@@ -15,6 +15,8 @@ import (
 	"strings"
 	"testing"
 	"unsafe"
+
+	"convtag/model/nb"
 )
 
 // stModel returns a small random model; hidden adds a hidden layer, fold
@@ -692,7 +694,7 @@ func BenchmarkVocabChecks(b *testing.B) {
 	b.ReportAllocs()
 	b.SetBytes(int64(8*len(v.offs) + 4*len(v.index)))
 	for b.Loop() {
-		if checkOffsets(v.offs, len(v.blob)) != nil || checkIndex(v.index, v.Len()) != nil {
+		if checkOffsets(v.offs, len(v.blob)) != nil || checkIndex(v) != nil {
 			b.Fatal("valid vocabulary rejected")
 		}
 	}
@@ -732,7 +734,12 @@ func TestFirstNonFinite(t *testing.T) {
 // vocabulary bytes, without touching the JSON header.
 func TestBaselineTensor(t *testing.T) {
 	m := stModel(t, 5, 0, "")
-	m.Baseline = []byte("nb1 opaque\x00bytes\n")
+	// A real encoding: Verify decodes it (TestVerifyUsable has garbage).
+	b, err := nb.Fit([][]string{{"w1", "w2"}, {"w3"}, {"w4", "w0"}}, []int{0, 1, 2}, 3, 1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	m.Baseline = b.Encode()
 	var buf bytes.Buffer
 	if err := m.Encode(&buf); err != nil {
 		t.Fatal(err)

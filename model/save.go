@@ -217,11 +217,16 @@ func parseChecksum(s string) ([]byte, error) {
 }
 
 // Verify reads the whole model: it recomputes the checksum of the data
-// buffer and compares it with the checksum metadata, and checks that every
+// buffer and compares it with the checksum metadata, checks that every
 // weight, including the embedding and fold tables that Load leaves unread,
-// is finite. It returns a *FormatError naming the file (when there is
+// is finite, that the vocabulary index finds every word and leaves empty
+// slots, that the forward pass gives probabilities on a few probe texts
+// (see checkProbes), and that the baseline, when there is one, decodes and
+// can score. It returns a *FormatError naming the file (when there is
 // one); ErrNoChecksum when the metadata has no checksum, ErrChecksum on a
-// mismatch, ErrNotFinite for a NaN or infinity.
+// mismatch, ErrNotFinite for a NaN or infinity, ErrVocab for a bad index,
+// ErrForward for a forward pass that overflows, ErrBaseline for a bad
+// baseline.
 func (m *Model) Verify() error {
 	name := ""
 	if m.src != nil {
@@ -251,6 +256,12 @@ func (m *Model) Verify() error {
 	if err := m.checkLarge(); err != nil {
 		return fail(err)
 	}
+	if err := m.checkProbes(); err != nil {
+		return fail(err)
+	}
+	if err := m.checkBaseline(); err != nil {
+		return fail(err)
+	}
 	return nil
 }
 
@@ -261,7 +272,7 @@ func (m *Model) checkLarge() error {
 		if err := checkOffsets(v.offs, len(v.blob)); err != nil {
 			return err
 		}
-		if err := checkIndex(v.index, v.Len()); err != nil {
+		if err := checkIndex(v); err != nil {
 			return err
 		}
 	}

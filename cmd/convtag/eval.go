@@ -11,6 +11,7 @@ import (
 	"slices"
 	"strconv"
 	"strings"
+	"unicode/utf8"
 
 	"github.com/spf13/cobra"
 	"github.com/spf13/pflag"
@@ -187,6 +188,7 @@ func (f *evalFlags) labelled(a *app, files []string) (*stream.LabelledSet, error
 type scored struct {
 	texts   []string
 	gold    []int
+	pos     []string       // each scored record's FILE:LINE, for errors
 	unknown map[string]int // records whose label the model lacks, by label
 }
 
@@ -204,16 +206,85 @@ func mapLabels(set *stream.LabelledSet, labels []string) scored {
 		}
 		s.texts = append(s.texts, r.Text)
 		s.gold = append(s.gold, g)
+		s.pos = append(s.pos, r.File+":"+strconv.FormatInt(r.Line, 10))
 	}
 	return s
 }
 
 func unknownString(u map[string]int) string {
-	var parts []string
-	for _, l := range slices.Sorted(mapKeys(u)) {
-		parts = append(parts, fmt.Sprintf("%q %d", l, u[l]))
+	keys := slices.Sorted(mapKeys(u))
+	return cappedList(len(keys), func(i int) string { return fmt.Sprintf("%s %d", quoteCapped(keys[i]), u[keys[i]]) })
+}
+
+// Caps on what an error or warning line quotes of the user's values, so
+// that a model with 400,000 labels or a 1 MB label still gives a line of
+// a few hundred bytes: at most listCap values and, after the first,
+// listBytes bytes of them, each value cut after valueCap bytes.
+const (
+	listCap   = 8
+	listBytes = 400
+	valueCap  = 200
+)
+
+// quoteCapped quotes s, cut after valueCap bytes (at a rune boundary) and
+// marked "…" when cut.
+func quoteCapped(s string) string {
+	if len(s) <= valueCap {
+		return strconv.Quote(s)
 	}
-	return strings.Join(parts, ", ")
+	cut := valueCap
+	for cut > 0 && !utf8.RuneStart(s[cut]) {
+		cut--
+	}
+	return strconv.Quote(s[:cut]) + "…"
+}
+
+// labelList is labels quoted and joined, at most listCap of them, with
+// "and N more" after.
+func labelList(labels []string) string {
+	return cappedList(len(labels), func(i int) string { return quoteCapped(labels[i]) })
+}
+
+// cappedList joins item(0), item(1), ... of n items within listCap and
+// listBytes, with "and N more" for those left out.
+func cappedList(n int, item func(int) string) string {
+	var b strings.Builder
+	i := 0
+	for ; i < n && i < listCap; i++ {
+		s := item(i)
+		if i > 0 && b.Len()+len(s) > listBytes {
+			break
+		}
+		if i > 0 {
+			b.WriteString(", ")
+		}
+		b.WriteString(s)
+	}
+	if i < n {
+		fmt.Fprintf(&b, " and %d more", n-i)
+	}
+	return b.String()
+}
+
+// firstNonFinite returns the index of the first NaN or infinite value of
+// probs, or -1.
+func firstNonFinite(probs []float32) int {
+	for j, v := range probs {
+		if math.IsNaN(float64(v)) || math.IsInf(float64(v), 0) {
+			return j
+		}
+	}
+	return -1
+}
+
+// nonFiniteErr is the error for a classifier (what: "model" or
+// "baseline") whose probabilities for the record at pos are not all
+// finite: the metrics would be meaningless, so eval refuses the model.
+func nonFiniteErr(what, name, pos string, labels []string, probs []float32, j int) error {
+	return &exitError{code: exitUsage,
+		err: fmt.Errorf("eval: %s: %s gives a non-finite probability for %s (%v for label %s)",
+			name, what, pos, probs[j], quoteCapped(labels[j])),
+		hint: "convtag inspect --verify " + name}
 }
 
 func mapKeys[V any](m map[string]V) func(func(string) bool) {
@@ -296,13 +367,16 @@ func runEval(a *app, f *evalFlags, args []string) error {
 			len(set.Records)-len(s.gold), name, unknownString(s.unknown))
 	}
 	if len(s.gold) == 0 {
-		return withCode(exitFailure, fmt.Errorf("eval: %s: no record has a label of %s (%s)", strings.Join(args, ", "), name, strings.Join(m.Labels, ", ")))
+		return withCode(exitFailure, fmt.Errorf("eval: %s: no record has a label of %s (%s)", strings.Join(args, ", "), name, labelList(m.Labels)))
 	}
 	opt := metrics.Options{TargetPrecision: f.target}
 	p := m.NewPredictor()
 	probs := make([][]float32, len(s.texts))
 	for i, t := range s.texts {
 		probs[i] = slices.Clone(p.Predict([]byte(t)))
+		if j := firstNonFinite(probs[i]); j >= 0 {
+			return nonFiniteErr("model", name, s.pos[i], m.Labels, probs[i], j)
+		}
 	}
 	rep, err := metrics.Evaluate(m.Labels, s.gold, probs, opt)
 	if err != nil {
@@ -325,6 +399,9 @@ func runEval(a *app, f *evalFlags, args []string) error {
 			bprobs = make([][]float32, len(s.texts))
 			for i, t := range s.texts {
 				bprobs[i] = baselineProbs(base, tokenStrings(tok, &ts, t))
+				if j := firstNonFinite(bprobs[i]); j >= 0 {
+					return nonFiniteErr("baseline ("+source+")", name, s.pos[i], m.Labels, bprobs[i], j)
+				}
 			}
 			br, err := metrics.Evaluate(m.Labels, s.gold, bprobs, opt)
 			if err != nil {
@@ -337,7 +414,10 @@ func runEval(a *app, f *evalFlags, args []string) error {
 	if f.plots != "" {
 		ps := plots.Set{Title: filepath.Base(name), Report: rep}
 		for c, l := range m.Labels {
-			pts, ap := metrics.PRCurve(s.gold, probs, c)
+			pts, ap, err := metrics.PRCurve(s.gold, probs, c)
+			if err != nil {
+				return withCode(exitFailure, fmt.Errorf("eval: %w", err))
+			}
 			ps.Curves = append(ps.Curves, plots.Curve{Label: l, Points: pts, AveragePrecision: ap})
 		}
 		if sum, ok := m.Meta[model.MetaTraining]; ok {
@@ -374,6 +454,12 @@ func (f *evalFlags) baseline(a *app, m *model.Model) (*nb.Model, string, error) 
 			return nil, "", err
 		}
 		s := mapLabels(set, m.Labels)
+		if len(s.gold) == 0 {
+			// Fitted on nothing, every label's prior is log 0 and every
+			// posterior 0/0: refuse instead of scoring NaN.
+			return nil, "", withCode(exitFailure, fmt.Errorf("eval: --baseline-train %s: no record has a label of the model (%s)",
+				strings.Join(files, ", "), labelList(m.Labels)))
+		}
 		if len(s.unknown) > 0 {
 			fmt.Fprintf(a.stderr, "convtag: warning: %d baseline training records have labels the model does not know and are not used: %s\n",
 				len(set.Records)-len(s.gold), unknownString(s.unknown))

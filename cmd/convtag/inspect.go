@@ -23,8 +23,11 @@ embedding size, window widths, filters, whether the folded table is present,
 file size, format version, every metadata field and the training summary.
 With no MODEL it describes the built-in model.
 
---verify recomputes the checksum of the tensor data and exits with status 2
-when it does not match the one stored in the file.
+--verify reads the whole file and exits with status 2 when tag or eval could
+not use it: the checksum of the tensor data differs from the stored one, a
+weight is NaN or infinite, the vocabulary index misses a word, the forward
+pass on a few probe texts gives no probabilities (weights that overflow), or
+the stored baseline does not decode.
 
 --ngrams N --sample FILE runs the texts of FILE (plain lines, or JSON Lines
 with --text-key) through the network and shows, for each label, the N word
@@ -79,7 +82,7 @@ windows.`,
 				return err
 			}
 			if verify {
-				fmt.Fprintln(a.stdout, "verified:       checksum matches")
+				fmt.Fprintln(a.stdout, "verified:       checksum, weights, index, probe predictions and baseline")
 			}
 			if sample != nil {
 				return sample.writeText(a.stdout)
@@ -88,7 +91,7 @@ windows.`,
 		},
 	}
 	c.Flags().BoolVar(&asJSON, "json", false, "print the description as JSON")
-	c.Flags().BoolVar(&verify, "verify", false, "recompute the data checksum; exit 2 on mismatch")
+	c.Flags().BoolVar(&verify, "verify", false, "check the checksum, weights, index, a forward pass and the baseline; exit 2 on a problem")
 	c.Flags().IntVar(&sf.ngrams, "ngrams", 0, "show the N windows of --sample that most raise each label's score, and each filter's N strongest")
 	c.Flags().StringArrayVar(&sf.samples, "sample", nil, "texts for --ngrams (plain lines, or JSON Lines with --text-key); repeatable")
 	c.Flags().StringArrayVar(&sf.textKeys, "text-key", nil, "dotted path of the text in a JSON sample record; repeat to join several")

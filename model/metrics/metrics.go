@@ -20,7 +20,15 @@ var (
 	ErrNoRecords = errors.New("metrics: no records")
 	ErrShape     = errors.New("metrics: probabilities do not match the labels")
 	ErrGold      = errors.New("metrics: true label out of range")
+	// ErrNotFinite is a NaN or infinite probability or confidence. It is
+	// refused, as scikit-learn refuses such input (its check_array raises
+	// ValueError "Input contains NaN" or "... infinity"), rather than
+	// given a place in an ordering it has none in.
+	ErrNotFinite = errors.New("metrics: probability is NaN or infinite")
 )
+
+// finite reports whether x is neither NaN nor infinite.
+func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
 
 // Fraction is a ratio that may be undefined (NaN), for example the
 // precision of a threshold that keeps no record. Its JSON form is a number,
@@ -222,6 +230,11 @@ func check(labels []string, gold []int, probs [][]float32) (pred []int, conf []f
 		if len(probs[i]) != len(labels) {
 			return nil, nil, fmt.Errorf("record %d: %w: %d values for %d labels", i, ErrShape, len(probs[i]), len(labels))
 		}
+		for j, v := range probs[i] {
+			if !finite(float64(v)) {
+				return nil, nil, fmt.Errorf("record %d: %w: %v for label %d", i, ErrNotFinite, v, j)
+			}
+		}
 		pred[i], conf[i] = Predict(probs[i])
 	}
 	return pred, conf, nil
@@ -229,7 +242,8 @@ func check(labels []string, gold []int, probs [][]float32) (pred []int, conf []f
 
 // Evaluate computes every figure for records with true labels gold (indices
 // into labels) and probabilities probs (one row per record, one value per
-// label). It does not keep gold or probs.
+// label). It does not keep gold or probs. A NaN or infinite probability
+// is refused with ErrNotFinite, naming the record.
 func Evaluate(labels []string, gold []int, probs [][]float32, opt Options) (*Report, error) {
 	pred, conf, err := check(labels, gold, probs)
 	if err != nil {
@@ -241,15 +255,26 @@ func Evaluate(labels []string, gold []int, probs [][]float32, opt Options) (*Rep
 	r.PerLabel = PerLabel(r.Confusion, labels)
 	r.MacroF1 = MacroF1(r.PerLabel)
 	for c := range r.PerLabel {
-		_, ap := PRCurve(gold, probs, c)
+		_, ap, err := PRCurve(gold, probs, c)
+		if err != nil {
+			return nil, err
+		}
 		r.PerLabel[c].AveragePrecision = ap
 	}
 	r.Calibration = Calibrate(gold, pred, conf, Bins)
 	r.Thresholds = ThresholdTables(labels, gold, pred, conf, Levels)
 	if t := opt.TargetPrecision; t > 0 && t <= 1 {
-		r.Target = &Target{Precision: t, Overall: LowestThreshold(gold, pred, conf, -1, t)}
+		all, err := LowestThreshold(gold, pred, conf, -1, t)
+		if err != nil {
+			return nil, err
+		}
+		r.Target = &Target{Precision: t, Overall: all}
 		for c, l := range labels {
-			r.Target.PerLabel = append(r.Target.PerLabel, OperatingAt{Label: l, Operating: LowestThreshold(gold, pred, conf, c, t)})
+			op, err := LowestThreshold(gold, pred, conf, c, t)
+			if err != nil {
+				return nil, err
+			}
+			r.Target.PerLabel = append(r.Target.PerLabel, OperatingAt{Label: l, Operating: op})
 		}
 	}
 	return r, nil
@@ -324,9 +349,13 @@ func MacroF1(stats []LabelStats) float64 {
 }
 
 // binOf is the bin of confidence c among m bins (lo, hi], clamped so that
-// 0 falls in the first bin.
+// 0 falls in the first bin. A NaN goes to the first bin: converting NaN
+// to an int is implementation-defined in Go, and the bin must be in range.
 func binOf(c float64, m int) int {
-	b := int(math.Ceil(c*float64(m))) - 1
+	if math.IsNaN(c) {
+		return 0
+	}
+	b := int(math.Ceil(min(max(c, -1), 2)*float64(m))) - 1
 	return min(max(b, 0), m-1)
 }
 
@@ -407,10 +436,14 @@ func ThresholdTables(labels []string, gold, pred []int, conf []float64, levels [
 // (the figures of Thresholds.Overall), else for that label (those of
 // Thresholds.PerLabel). A record is kept when its confidence is >= the
 // threshold. Every distinct confidence is a candidate, not only Levels.
-func LowestThreshold(gold, pred []int, conf []float64, label int, target float64) Operating {
+// A NaN or infinite confidence is refused with ErrNotFinite.
+func LowestThreshold(gold, pred []int, conf []float64, label int, target float64) (Operating, error) {
 	var idx []int
 	support := 0
 	for i := range gold {
+		if !finite(conf[i]) {
+			return Operating{}, fmt.Errorf("record %d: %w: confidence %v", i, ErrNotFinite, conf[i])
+		}
 		if label < 0 || pred[i] == label {
 			idx = append(idx, i)
 		}
@@ -432,7 +465,9 @@ func LowestThreshold(gold, pred []int, conf []float64, label int, target float64
 	kept, right := 0, 0
 	for j := 0; j < len(idx); {
 		v := conf[idx[j]]
-		for ; j < len(idx) && conf[idx[j]] == v; j++ {
+		// The first record of a group is taken unconditionally, so j
+		// advances whatever the values compare like.
+		for start := j; j < len(idx) && (j == start || conf[idx[j]] == v); j++ {
 			kept++
 			if pred[idx[j]] == gold[idx[j]] {
 				right++
@@ -457,12 +492,12 @@ func LowestThreshold(gold, pred []int, conf []float64, label int, target float64
 		}
 	}
 	if op.Reached {
-		return op
+		return op, nil
 	}
 	if bestPrec < 0 {
-		return Operating{Precision: Fraction(math.NaN()), Recall: ratio(0, support), Coverage: Fraction(math.NaN())}
+		return Operating{Precision: Fraction(math.NaN()), Recall: ratio(0, support), Coverage: Fraction(math.NaN())}, nil
 	}
-	return best
+	return best, nil
 }
 
 // shortestIn returns the decimal with the fewest digits after the point in
@@ -492,11 +527,15 @@ type PRPoint struct {
 // from the highest down, and its average precision
 // AP = sum_k (R_k − R_{k−1}) P_k with R_0 = 0 (scikit-learn's
 // precision_recall_curve and average_precision_score). Recall and AP are
-// undefined (NaN) when no record has the label.
-func PRCurve(gold []int, probs [][]float32, label int) ([]PRPoint, Fraction) {
+// undefined (NaN) when no record has the label. A NaN or infinite score
+// is refused with ErrNotFinite (a NaN has no place in the ordering).
+func PRCurve(gold []int, probs [][]float32, label int) ([]PRPoint, Fraction, error) {
 	idx := make([]int, len(gold))
 	pos := 0
 	for i := range idx {
+		if v := float64(probs[i][label]); !finite(v) {
+			return nil, 0, fmt.Errorf("record %d: %w: %v for label %d", i, ErrNotFinite, v, label)
+		}
 		idx[i] = i
 		if gold[i] == label {
 			pos++
@@ -517,7 +556,7 @@ func PRCurve(gold []int, probs [][]float32, label int) ([]PRPoint, Fraction) {
 	tp, n := 0, 0
 	for j := 0; j < len(idx); {
 		v := score(idx[j])
-		for ; j < len(idx) && score(idx[j]) == v; j++ {
+		for start := j; j < len(idx) && (j == start || score(idx[j]) == v); j++ {
 			n++
 			if gold[idx[j]] == label {
 				tp++
@@ -533,9 +572,9 @@ func PRCurve(gold []int, probs [][]float32, label int) ([]PRPoint, Fraction) {
 		pts = append(pts, PRPoint{Threshold: v, Precision: p, Recall: r})
 	}
 	if pos == 0 {
-		return pts, Fraction(math.NaN())
+		return pts, Fraction(math.NaN()), nil
 	}
-	return pts, Fraction(ap)
+	return pts, Fraction(ap), nil
 }
 
 // Spread is a mean and sample standard deviation over folds.

@@ -120,7 +120,10 @@ func TestWorkedExamples(t *testing.T) {
 		for _, s := range []float32{0.1, 0.4, 0.35, 0.8} {
 			probs = append(probs, []float32{1 - s, s})
 		}
-		pts, ap := PRCurve(gold, probs, 1)
+		pts, ap, err := PRCurve(gold, probs, 1)
+		if err != nil {
+			t.Fatal(err)
+		}
 		if !near(float64(ap), 0.5+0.5*2.0/3, 1e-12) {
 			t.Errorf("AP = %v, want 0.8333", ap)
 		}
@@ -246,7 +249,10 @@ func TestThresholds(t *testing.T) {
 		// Every a prediction is right: (0, 0.5342] gives 0.5.
 		{0, 1, true, 0.5, 3, 3.0 / 5, 1},
 	} {
-		op := LowestThreshold(gold, pred, conf, c.label, c.target)
+		op, err := LowestThreshold(gold, pred, conf, c.label, c.target)
+		if err != nil {
+			t.Fatal(err)
+		}
 		if op.Reached != c.reached || op.Threshold != c.thr || op.Kept != c.kept || !near(float64(op.Recall), c.recall, eps) || !near(float64(op.Coverage), c.cover, eps) {
 			t.Errorf("label %d target %v: %+v, want reached %v threshold %v kept %d recall %v coverage %v",
 				c.label, c.target, op, c.reached, c.thr, c.kept, c.recall, c.cover)
@@ -407,7 +413,10 @@ func TestAgainstScikitLearn(t *testing.T) {
 		t.Errorf("reliability: accuracy %v confidence %v\nsklearn accuracy %v confidence %v", accs, confs, ref.BinAccuracy, ref.BinConfidence)
 	}
 	for c := range k {
-		pts, ap := PRCurve(gold, probs, c)
+		pts, ap, err := PRCurve(gold, probs, c)
+		if err != nil {
+			t.Fatal(err)
+		}
 		rp := ref.PR[c]
 		if rp == nil {
 			if ap.Defined() {

@@ -1,10 +1,12 @@
 package plots
 
 import (
+	"bufio"
 	"encoding/json"
 	"errors"
 	"fmt"
 	"image/color"
+	"io"
 	"math"
 	"os"
 	"path/filepath"
@@ -45,15 +47,17 @@ var series = []color.Color{
 func seriesColor(i int) color.Color { return series[i%len(series)] }
 
 func save(p *plot.Plot, w, h vg.Length, path string) error {
-	if err := p.Save(w, h, path); err != nil {
+	format := strings.TrimPrefix(strings.ToLower(filepath.Ext(path)), ".")
+	wt, err := p.WriterTo(w, h, format)
+	if err != nil {
 		return fmt.Errorf("plots: write %s: %w", path, err)
 	}
-	return nil
+	return writeFile(path, func(f io.Writer) error { _, err := wt.WriteTo(f); return err })
 }
 
 // saveLegendBelow writes p with the legend leg in a strip under the plot,
 // where it cannot hide a curve: w × h is the plot's own area.
-func saveLegendBelow(p *plot.Plot, leg *legend, w, h vg.Length, path string) (err error) {
+func saveLegendBelow(p *plot.Plot, leg *legend, w, h vg.Length, path string) error {
 	n := len(leg.names)
 	strip := vg.Length(n)*vg.Points(10.5) + vg.Points(14)
 	format := strings.TrimPrefix(strings.ToLower(filepath.Ext(path)), ".")
@@ -65,19 +69,48 @@ func saveLegendBelow(p *plot.Plot, leg *legend, w, h vg.Length, path string) (er
 	p.Draw(draw.Crop(dc, 0, 0, strip, 0))
 	leg.Top, leg.Left = true, true
 	leg.Draw(draw.Crop(dc, 2*vg.Centimeter, 0, 0, -h))
-	f, err := os.Create(path)
-	if err != nil {
-		return fmt.Errorf("plots: %w", err)
+	return writeFile(path, func(f io.Writer) error { _, err := c.WriteTo(f); return err })
+}
+
+// wrapOutput is what a figure's bytes go through on the way to its
+// temporary file; tests make it fail, as a full disk would.
+var wrapOutput = func(w io.Writer) io.Writer { return w }
+
+// writeFile writes a figure to path through a temporary file in the same
+// directory, renamed over path only once every byte is written and the
+// file closed: a failed write (a full disk) leaves neither a partial
+// figure nor the temporary file, and an older figure at path stays whole.
+func writeFile(path string, write func(io.Writer) error) (err error) {
+	dir, base := filepath.Split(path)
+	if dir == "" {
+		dir = "."
 	}
-	defer func() {
-		if e := f.Close(); err == nil && e != nil {
-			err = fmt.Errorf("plots: write %s: %w", path, e)
-		}
-	}()
-	if _, err := c.WriteTo(f); err != nil {
+	f, err := os.CreateTemp(dir, "."+base+".*.tmp")
+	if err != nil {
 		return fmt.Errorf("plots: write %s: %w", path, err)
 	}
-	return nil
+	tmp := f.Name()
+	defer func() {
+		if err != nil {
+			f.Close()
+			os.Remove(tmp)
+			err = fmt.Errorf("plots: write %s: %w", path, err)
+		}
+	}()
+	bw := bufio.NewWriter(wrapOutput(f))
+	if err = write(bw); err != nil {
+		return err
+	}
+	if err = bw.Flush(); err != nil {
+		return err
+	}
+	if err = f.Chmod(0o644); err != nil {
+		return err
+	}
+	if err = f.Close(); err != nil {
+		return err
+	}
+	return os.Rename(tmp, path)
 }
 
 // legend is a plot.Legend with its entry names remembered, since

@@ -65,7 +65,10 @@ func set(t *testing.T) Set {
 	}
 	var curves []Curve
 	for c, l := range labels {
-		pts, ap := metrics.PRCurve(gold, probs, c)
+		pts, ap, err := metrics.PRCurve(gold, probs, c)
+		if err != nil {
+			t.Fatal(err)
+		}
 		curves = append(curves, Curve{Label: l, Points: pts, AveragePrecision: ap})
 	}
 	h, err := ParseHistory([]byte(summary))
