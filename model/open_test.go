@@ -620,7 +620,7 @@ func TestInfo(t *testing.T) {
 	if err := in.WriteText(&text); err != nil {
 		t.Fatal(err)
 	}
-	for _, want := range []string{`"pier" "tide" "gull"`, "7 words + 5 buckets + padding = 13 rows", "yes, F16", "training best:", `"accuracy":0.875`, "max_tokens=50"} {
+	for _, want := range []string{`"pier" "tide" "gull"`, "7 words + 5 rows for unseen words + padding = 13 rows", "yes, F16", "training best:", `"accuracy":0.875`, "max_tokens=50"} {
 		if !strings.Contains(text.String(), want) {
 			t.Errorf("text lacks %q:\n%s", want, text.String())
 		}
