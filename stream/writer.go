@@ -2,10 +2,13 @@ package stream
 
 import (
 	"bufio"
+	"crypto/rand"
+	"encoding/hex"
 	"errors"
 	"fmt"
 	"io"
 	"os"
+	"path/filepath"
 	"strings"
 	"syscall"
 
@@ -23,21 +26,25 @@ type flusher interface {
 // the destination (the caller's writer, or a file it opens and can reopen).
 // Its first error sticks: every later call returns it.
 type writer struct {
-	path string // "" means dst is the caller's writer
-	comp Compress
-	dst  io.Writer
-	file *os.File
-	sink *bufio.Writer // what reaches dst
-	zw   flusher       // nil when uncompressed
-	err  error
+	path     string // "" means dst is the caller's writer
+	comp     Compress
+	appendTo bool
+	dst      io.Writer
+	file     *os.File
+	repl     *Replacement  // the temporary file when path is replaced at the end
+	sink     *bufio.Writer // what reaches dst
+	zw       flusher       // nil when uncompressed
+	err      error
 }
 
 const writeBuffer = 256 << 10
 
-// newWriter writes to the file path (truncated, or appended to when
-// appendTo is set) or, when path is "" or "-", to stdout.
+// newWriter writes to the file path or, when path is "" or "-", to stdout.
+// With appendTo it adds to the file in place; otherwise a regular (or not
+// yet existing) file is written under a temporary name and put in place by
+// finish(true), and anything else (a device, a FIFO) is written in place.
 func newWriter(path string, comp Compress, appendTo bool, stdout io.Writer) (*writer, error) {
-	w := &writer{comp: comp, dst: stdout}
+	w := &writer{comp: comp, dst: stdout, appendTo: appendTo}
 	if path != "" && path != "-" {
 		w.path = path
 	}
@@ -54,15 +61,32 @@ func newWriter(path string, comp Compress, appendTo bool, stdout io.Writer) (*wr
 	mode := os.O_TRUNC
 	if appendTo {
 		mode = os.O_APPEND
+	} else if w.path != "" && replaceable(w.path) {
+		r, err := NewReplacement(w.path)
+		if err != nil {
+			return nil, fmt.Errorf("open output: %w", err)
+		}
+		w.repl, w.file, w.dst = r, r.f, r.f
+		mode = 0
 	}
 	if err := w.open(mode); err != nil {
+		if w.repl != nil {
+			w.repl.Discard()
+		}
 		return nil, err
 	}
 	return w, nil
 }
 
+// open opens w.path with mode (os.O_TRUNC or os.O_APPEND; 0 when the
+// temporary file is open already) and starts the compressor.
 func (w *writer) open(mode int) error {
-	if w.path != "" {
+	if w.path != "" && mode != 0 {
+		if mode == os.O_APPEND && w.comp != CompressNone {
+			if err := checkWhole(w.path, w.comp); err != nil {
+				return err
+			}
+		}
 		f, err := os.OpenFile(w.path, os.O_WRONLY|os.O_CREATE|mode, 0o666)
 		if err != nil {
 			return fmt.Errorf("open output: %w", err)
@@ -114,12 +138,23 @@ func endsWithNewline(path string) bool {
 	return last[0] == '\n'
 }
 
+// fail makes err sticky. An *os.PathError names the file already (the
+// temporary file's name is replaced by the file's own); any other error
+// gets "write NAME:" in front.
 func (w *writer) fail(err error) error {
 	if w.err == nil {
+		var pe *os.PathError
+		if errors.As(err, &pe) {
+			if w.repl != nil && pe.Path == w.repl.tmp {
+				err = &os.PathError{Op: pe.Op, Path: w.path, Err: pe.Err}
+			}
+		} else {
+			err = fmt.Errorf("write %s: %w", w.name(), err)
+		}
 		if errors.Is(err, syscall.EPIPE) {
 			err = fmt.Errorf("%w: %w", ErrOutputClosed, err)
 		}
-		w.err = fmt.Errorf("write %s: %w", w.name(), err)
+		w.err = err
 	}
 	return w.err
 }
@@ -173,7 +208,11 @@ func (w *writer) flush() error {
 }
 
 // close ends the compressed stream, flushes and closes a file it opened.
+// A temporary file is left open for finish.
 func (w *writer) close() error {
+	if w.repl != nil {
+		w.file = nil
+	}
 	if w.err != nil {
 		if w.file != nil {
 			w.file.Close()
@@ -197,12 +236,30 @@ func (w *writer) close() error {
 	return nil
 }
 
+// finish closes the output and, when it was written under a temporary
+// name, renames that onto the file when commit is set and removes it
+// otherwise, leaving the file as it was. It returns close's error, or the
+// rename's.
+func (w *writer) finish(commit bool) error {
+	err := w.close()
+	if w.repl == nil {
+		return err
+	}
+	if err != nil || !commit {
+		w.repl.Discard()
+		return err
+	}
+	return w.repl.Commit()
+}
+
 // reopen closes the output file and opens the same path again for
 // appending (a log rotator may have moved the old one away). A compressed
 // output gets a new gzip member or zstd frame, which readers take as one
-// stream. It does nothing when writing to the caller's writer.
+// stream. It only flushes when writing to the caller's writer or to a
+// file opened without appendTo (which is not rotated: it appears at the
+// end of the run, or is a device or FIFO).
 func (w *writer) reopen() error {
-	if w.path == "" {
+	if w.path == "" || !w.appendTo {
 		return w.flush()
 	}
 	if err := w.close(); err != nil {
@@ -213,4 +270,157 @@ func (w *writer) reopen() error {
 		return err
 	}
 	return nil
+}
+
+// replaceable reports whether path is a regular file or does not exist yet
+// (a broken link aside): one that is written under a temporary name and
+// renamed onto it, rather than a device or FIFO, written in place.
+func replaceable(path string) bool {
+	st, err := os.Stat(path)
+	if err != nil {
+		_, lerr := os.Lstat(path)
+		return errors.Is(err, os.ErrNotExist) && errors.Is(lerr, os.ErrNotExist)
+	}
+	return st.Mode().IsRegular()
+}
+
+// Replacement is a file written under a temporary name in the directory of
+// the file it replaces, renamed onto it by Commit or removed by Discard,
+// so that the file is either as it was or wholly the new one. A symbolic
+// link is followed: the file it points to is replaced. Not safe for
+// concurrent use.
+type Replacement struct {
+	f         *os.File
+	path, tmp string
+	done      bool
+}
+
+// NewReplacement creates the temporary file for path: ".convtag-XXXXXXXX-"
+// and path's base name (so its suffix stays last), in path's directory,
+// with mode 0666 before the umask, or the permission bits of the existing
+// file, which must be writable (an open for writing checks that, without
+// truncating it).
+func NewReplacement(path string) (*Replacement, error) {
+	target := path
+	if t, err := filepath.EvalSymlinks(path); err == nil {
+		target = t
+	}
+	perm := os.FileMode(0o666)
+	if st, err := os.Stat(target); err == nil {
+		f, err := os.OpenFile(target, os.O_WRONLY, 0)
+		if err != nil {
+			return nil, err
+		}
+		f.Close()
+		perm = st.Mode().Perm()
+	}
+	dir, base := filepath.Split(target)
+	var rnd [4]byte
+	for range 100 {
+		rand.Read(rnd[:])
+		tmp := filepath.Join(dir, ".convtag-"+hex.EncodeToString(rnd[:])+"-"+base)
+		f, err := os.OpenFile(tmp, os.O_WRONLY|os.O_CREATE|os.O_EXCL, 0o666)
+		if errors.Is(err, os.ErrExist) {
+			continue
+		}
+		if err != nil {
+			return nil, err
+		}
+		if perm != 0o666 {
+			if err := f.Chmod(perm); err != nil {
+				f.Close()
+				os.Remove(tmp)
+				return nil, err
+			}
+		}
+		return &Replacement{f: f, path: target, tmp: tmp}, nil
+	}
+	return nil, fmt.Errorf("create a temporary file beside %s: too many name clashes", path)
+}
+
+// Write writes to the temporary file; its errors name the file replaced.
+func (r *Replacement) Write(p []byte) (int, error) {
+	n, err := r.f.Write(p)
+	var pe *os.PathError
+	if errors.As(err, &pe) && pe.Path == r.tmp {
+		err = &os.PathError{Op: pe.Op, Path: r.path, Err: pe.Err}
+	}
+	return n, err
+}
+
+// Commit syncs and closes the temporary file and renames it onto the file.
+// On an error the temporary file is removed and the file left as it was.
+func (r *Replacement) Commit() error {
+	if r.done {
+		return nil
+	}
+	r.done = true
+	err := r.f.Sync()
+	if cerr := r.f.Close(); err == nil {
+		err = cerr
+	}
+	if err == nil {
+		err = os.Rename(r.tmp, r.path)
+	}
+	if err != nil {
+		os.Remove(r.tmp)
+		return fmt.Errorf("write %s: %w", r.path, errors.Unwrap(err))
+	}
+	return nil
+}
+
+// Discard closes and removes the temporary file; the file stays as it
+// was. It does nothing after Commit.
+func (r *Replacement) Discard() {
+	if r.done {
+		return
+	}
+	r.done = true
+	r.f.Close()
+	os.Remove(r.tmp)
+}
+
+// checkWhole decodes the compressed file at path to its end, so that
+// records are never appended after a gzip member or zstd frame that a
+// killed writer left cut (readers would stop there, at the earliest). An
+// empty or missing file is fine.
+func checkWhole(path string, comp Compress) error {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil // the open for appending reports it, or creates the file
+	}
+	defer f.Close()
+	st, err := f.Stat()
+	if err != nil || !st.Mode().IsRegular() || st.Size() == 0 {
+		return nil
+	}
+	br := bufio.NewReaderSize(f, 64<<10)
+	var r io.Reader
+	kind := "gzip"
+	switch comp {
+	case CompressGzip:
+		zr, err := gzip.NewReader(br)
+		if err != nil {
+			return appendErr(path, kind, err)
+		}
+		r = zr
+	case CompressZstd:
+		kind = "zstd"
+		zr, err := zstd.NewReader(br, zstd.WithDecoderConcurrency(1))
+		if err != nil {
+			return appendErr(path, kind, err)
+		}
+		defer zr.Close()
+		r = zr
+	default:
+		return nil
+	}
+	if _, err := io.Copy(io.Discard, r); err != nil {
+		return appendErr(path, kind, err)
+	}
+	return nil
+}
+
+func appendErr(path, kind string, err error) error {
+	return fmt.Errorf("append to %s: %w (%s: %v); nothing was written to it", path, ErrCutOutput, kind, err)
 }
