@@ -31,7 +31,7 @@ type writer struct {
 	appendTo bool
 	dst      io.Writer
 	file     *os.File
-	repl     *Replacement  // the temporary file when path is replaced at the end
+	repl     *OutputFile   // the file when not appending
 	sink     *bufio.Writer // what reaches dst
 	zw       flusher       // nil when uncompressed
 	err      error
@@ -40,9 +40,8 @@ type writer struct {
 const writeBuffer = 256 << 10
 
 // newWriter writes to the file path or, when path is "" or "-", to stdout.
-// With appendTo it adds to the file in place; otherwise a regular (or not
-// yet existing) file is written under a temporary name and put in place by
-// finish(true), and anything else (a device, a FIFO) is written in place.
+// With appendTo it adds to the file in place; otherwise it writes an
+// OutputFile, put in place by finish(true).
 func newWriter(path string, comp Compress, appendTo bool, stdout io.Writer) (*writer, error) {
 	w := &writer{comp: comp, dst: stdout, appendTo: appendTo}
 	if path != "" && path != "-" {
@@ -61,8 +60,8 @@ func newWriter(path string, comp Compress, appendTo bool, stdout io.Writer) (*wr
 	mode := os.O_TRUNC
 	if appendTo {
 		mode = os.O_APPEND
-	} else if w.path != "" && replaceable(w.path) {
-		r, err := NewReplacement(w.path)
+	} else if w.path != "" {
+		r, err := CreateOutputFile(w.path)
 		if err != nil {
 			return nil, fmt.Errorf("open output: %w", err)
 		}
@@ -145,8 +144,8 @@ func (w *writer) fail(err error) error {
 	if w.err == nil {
 		var pe *os.PathError
 		if errors.As(err, &pe) {
-			if w.repl != nil && pe.Path == w.repl.tmp {
-				err = &os.PathError{Op: pe.Op, Path: w.path, Err: pe.Err}
+			if w.repl != nil {
+				err = w.repl.rename(err)
 			}
 		} else {
 			err = fmt.Errorf("write %s: %w", w.name(), err)
@@ -236,10 +235,9 @@ func (w *writer) close() error {
 	return nil
 }
 
-// finish closes the output and, when it was written under a temporary
-// name, renames that onto the file when commit is set and removes it
-// otherwise, leaving the file as it was. It returns close's error, or the
-// rename's.
+// finish closes the output and, when it is an OutputFile, commits it when
+// commit is set and discards it otherwise (a replaced file is then left as
+// it was). It returns close's error, or the commit's.
 func (w *writer) finish(commit bool) error {
 	err := w.close()
 	if w.repl == nil {
@@ -272,41 +270,37 @@ func (w *writer) reopen() error {
 	return nil
 }
 
-// replaceable reports whether path is a regular file or does not exist yet
-// (a broken link aside): one that is written under a temporary name and
-// renamed onto it, rather than a device or FIFO, written in place.
-func replaceable(path string) bool {
-	st, err := os.Stat(path)
-	if err != nil {
-		_, lerr := os.Lstat(path)
-		return errors.Is(err, os.ErrNotExist) && errors.Is(lerr, os.ErrNotExist)
-	}
-	return st.Mode().IsRegular()
-}
-
-// Replacement is a file written under a temporary name in the directory of
-// the file it replaces, renamed onto it by Commit or removed by Discard,
-// so that the file is either as it was or wholly the new one. A symbolic
-// link is followed: the file it points to is replaced. Not safe for
-// concurrent use.
-type Replacement struct {
+// OutputFile is an output file that appears whole or not at all: a
+// regular (or not yet existing) file is written under a temporary name in
+// its directory, renamed onto it by Commit or removed by Discard, so the
+// file is either as it was or wholly the new one. A symbolic link is
+// followed: the file it points to is replaced. Anything else (a device, a
+// FIFO) is written in place. Not safe for concurrent use.
+type OutputFile struct {
 	f         *os.File
-	path, tmp string
+	path, tmp string // tmp is "" when written in place
 	done      bool
 }
 
-// NewReplacement creates the temporary file for path: ".convtag-XXXXXXXX-"
-// and path's base name (so its suffix stays last), in path's directory,
-// with mode 0666 before the umask, or the permission bits of the existing
-// file, which must be writable (an open for writing checks that, without
-// truncating it).
-func NewReplacement(path string) (*Replacement, error) {
+// CreateOutputFile opens path for writing as OutputFile describes. The
+// temporary file is named ".convtag-XXXXXXXX-" and path's base name (so its
+// suffix stays last) and has mode 0666 before the umask, or the permission
+// bits of the file it replaces, which must be writable (an open for writing
+// checks that, without truncating it).
+func CreateOutputFile(path string) (*OutputFile, error) {
 	target := path
 	if t, err := filepath.EvalSymlinks(path); err == nil {
 		target = t
 	}
 	perm := os.FileMode(0o666)
 	if st, err := os.Stat(target); err == nil {
+		if !st.Mode().IsRegular() {
+			f, err := os.OpenFile(target, os.O_WRONLY|os.O_TRUNC, 0)
+			if err != nil {
+				return nil, err
+			}
+			return &OutputFile{f: f, path: path}, nil
+		}
 		f, err := os.OpenFile(target, os.O_WRONLY, 0)
 		if err != nil {
 			return nil, err
@@ -333,51 +327,66 @@ func NewReplacement(path string) (*Replacement, error) {
 				return nil, err
 			}
 		}
-		return &Replacement{f: f, path: target, tmp: tmp}, nil
+		return &OutputFile{f: f, path: target, tmp: tmp}, nil
 	}
 	return nil, fmt.Errorf("create a temporary file beside %s: too many name clashes", path)
 }
 
-// Write writes to the temporary file; its errors name the file replaced.
-func (r *Replacement) Write(p []byte) (int, error) {
-	n, err := r.f.Write(p)
-	var pe *os.PathError
-	if errors.As(err, &pe) && pe.Path == r.tmp {
-		err = &os.PathError{Op: pe.Op, Path: r.path, Err: pe.Err}
-	}
-	return n, err
+// Replaces reports whether f is written under a temporary name (and so
+// the file is left as it was unless Commit is called).
+func (f *OutputFile) Replaces() bool { return f.tmp != "" }
+
+// Write writes to the file; its errors name the file, never the
+// temporary name.
+func (f *OutputFile) Write(p []byte) (int, error) {
+	n, err := f.f.Write(p)
+	return n, f.rename(err)
 }
 
-// Commit syncs and closes the temporary file and renames it onto the file.
-// On an error the temporary file is removed and the file left as it was.
-func (r *Replacement) Commit() error {
-	if r.done {
+func (f *OutputFile) rename(err error) error {
+	var pe *os.PathError
+	if f.tmp != "" && errors.As(err, &pe) && pe.Path == f.tmp {
+		return &os.PathError{Op: pe.Op, Path: f.path, Err: pe.Err}
+	}
+	return err
+}
+
+// Commit syncs and closes the temporary file and renames it onto the file
+// (or closes a file written in place). On an error the temporary file is
+// removed and the file left as it was. It does nothing a second time.
+func (f *OutputFile) Commit() error {
+	if f.done {
 		return nil
 	}
-	r.done = true
-	err := r.f.Sync()
-	if cerr := r.f.Close(); err == nil {
+	f.done = true
+	if f.tmp == "" {
+		return f.f.Close()
+	}
+	err := f.f.Sync()
+	if cerr := f.f.Close(); err == nil {
 		err = cerr
 	}
 	if err == nil {
-		err = os.Rename(r.tmp, r.path)
+		err = os.Rename(f.tmp, f.path)
 	}
 	if err != nil {
-		os.Remove(r.tmp)
-		return fmt.Errorf("write %s: %w", r.path, errors.Unwrap(err))
+		os.Remove(f.tmp)
+		return fmt.Errorf("write %s: %w", f.path, errors.Unwrap(err))
 	}
 	return nil
 }
 
-// Discard closes and removes the temporary file; the file stays as it
-// was. It does nothing after Commit.
-func (r *Replacement) Discard() {
-	if r.done {
+// Discard closes the file and removes the temporary file; the file stays
+// as it was. It does nothing after Commit.
+func (f *OutputFile) Discard() {
+	if f.done {
 		return
 	}
-	r.done = true
-	r.f.Close()
-	os.Remove(r.tmp)
+	f.done = true
+	f.f.Close()
+	if f.tmp != "" {
+		os.Remove(f.tmp)
+	}
 }
 
 // checkWhole decodes the compressed file at path to its end, so that

@@ -80,7 +80,7 @@ func TestRunReplacesOutputOnlyOnSuccess(t *testing.T) {
 // The temporary file sits beside the file, ends with its name (so a
 // suffix still picks the compression) and gets the mode a new file gets
 // (0666 less the umask), or the permission bits of the file it replaces.
-func TestReplacementNameAndMode(t *testing.T) {
+func TestOutputFileNameAndMode(t *testing.T) {
 	dir := t.TempDir()
 	old := syscall.Umask(0o022)
 	defer syscall.Umask(old)
@@ -98,7 +98,7 @@ func TestReplacementNameAndMode(t *testing.T) {
 			os.WriteFile(path, []byte("old\n"), c.prev)
 			os.Chmod(path, c.prev)
 		}
-		r, err := NewReplacement(path)
+		r, err := CreateOutputFile(path)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -126,7 +126,7 @@ func TestReplacementNameAndMode(t *testing.T) {
 	ro := filepath.Join(dir, "ro.jsonl")
 	os.WriteFile(ro, []byte("old\n"), 0o444)
 	if os.Geteuid() != 0 {
-		if _, err := NewReplacement(ro); !errors.Is(err, os.ErrPermission) {
+		if _, err := CreateOutputFile(ro); !errors.Is(err, os.ErrPermission) {
 			t.Errorf("read-only file: %v, want permission denied", err)
 		}
 	}
@@ -146,7 +146,7 @@ func TestWriterErrorNamesFileOnce(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		if w.repl != nil {
+		if w.repl == nil || w.repl.Replaces() {
 			t.Fatal("a device is written in place")
 		}
 		w.write([]byte(strings.Repeat("fog on the quay\n", 1<<15)))
