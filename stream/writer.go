@@ -318,7 +318,11 @@ func CreateOutputFile(path string) (*OutputFile, error) {
 			continue
 		}
 		if err != nil {
-			return nil, err
+			var pe *os.PathError
+			if errors.As(err, &pe) {
+				err = pe.Err
+			}
+			return nil, fmt.Errorf("%s: create a temporary file beside it: %w", path, err)
 		}
 		if perm != 0o666 {
 			if err := f.Chmod(perm); err != nil {

@@ -79,17 +79,30 @@ it out. Records that cannot be tagged pass through unchanged and are counted
 (or go to the --rejects file): malformed JSON, a text key holding a number,
 boolean, array or object, a line longer than 64 MiB. Empty and blank lines
 and JSON records without the text key pass through unchanged. With --keep,
-untagged records are left out too.
+untagged records are left out too. --scores, --top and --why go into JSON
+output only: with --format text they need --emit jsonl; with --format auto,
+text lines written as TSV go without them.
+
+No output file is lost either. Every input is opened, and no two of the
+inputs, -o, --rejects, the model and a redirected standard input or output
+may be one file (exit 2), before any output is created. Without --append,
+-o FILE and --rejects FILE are written to a temporary file beside FILE and
+renamed onto it only when every input was read and written (exit 0, or 3
+under --strict); after any other end FILE is left as it was, and the error
+says so. FILE thus appears at the end: for a live stream give --append,
+which writes in place. A .gz or .zst FILE to --append to must decode to its
+end (a killed run may have cut it); otherwise nothing is written, exit 1.
+A standard output closed at the start (>&-) is an error, exit 1.
 
 Signals: SIGINT and SIGTERM stop after writing whole lines, exit status 1.
 SIGHUP reopens the model file between two blocks (a bad file is reported and
-the old model kept) and reopens the --output file for appending.
+the old model kept) and, with --append, reopens the --output file.
 
 ` + exitHelp,
 		Example: `  convtag tag chat.jsonl > tagged.jsonl
   zstd -dc archive.jsonl.zst | convtag tag -m ferry.safetensors --keep weather
   convtag tag --format text --emit jsonl notes.txt
-  tail -F service.log | convtag tag -k msg --min-confidence 0.6 -o tagged.jsonl.gz`,
+  tail -F service.log | convtag tag -k msg --min-confidence 0.6 --append -o tagged.jsonl.gz`,
 		RunE: func(cmd *cobra.Command, args []string) error {
 			if err := checkTagFlags(&o, format, emit, compress, progress, output, why, textKeys); err != nil {
 				return err
@@ -238,10 +251,10 @@ the old model kept) and reopens the --output file for appending.
 	f.StringSliceVar(&drop, "drop", nil, "leave out records with one of these tags (TAG[,TAG])")
 	f.StringVar(&emit, "emit", "tsv", "how text lines are written: tsv (tag TAB confidence TAB line) or jsonl")
 	f.StringVarP(&output, "output", "o", "", "write to FILE (compressed by its suffix .gz or .zst)")
-	f.BoolVar(&o.Append, "append", false, "with --output: add to FILE instead of replacing it (for a filter a log daemon restarts)")
+	f.BoolVar(&o.Append, "append", false, "with --output: add to FILE in place, instead of replacing it when the run ends (for a live stream, or a filter a log daemon restarts)")
 	f.StringVar(&compress, "compress", "auto", "output compression: auto (by --output suffix), none, gzip or zstd")
-	f.IntVarP(&o.Jobs, "jobs", "j", 0, "workers (default: all cores)")
-	f.IntVar(&o.BlockSize, "batch", 0, "bytes of input a worker takes at a time (default 1048576)")
+	f.IntVarP(&o.Jobs, "jobs", "j", 0, "workers (default: all cores; at most 1024)")
+	f.IntVar(&o.BlockSize, "batch", 0, "bytes of input a worker takes at a time (default 1048576; at most 268435456)")
 	f.StringVar(&rejects, "rejects", "", "write records that cannot be tagged to FILE instead of the output")
 	f.BoolVar(&strict, "strict", false, "exit with status 3 at the end if any record was rejected")
 	f.StringVar(&progress, "progress", "auto", "progress bar on stderr: auto (when stderr is a terminal and the input size is known), on or off")
