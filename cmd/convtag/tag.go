@@ -7,6 +7,7 @@ import (
 	"io"
 	"os"
 	"os/signal"
+	"path/filepath"
 	"runtime"
 	"slices"
 	"sort"
@@ -451,7 +452,31 @@ func checkSameFiles(a *app, inputs []string, modelPath, output, rejects string) 
 			}
 		}
 	}
+	// Two outputs that do not exist yet are one file when their paths,
+	// with the directory's links resolved, are equal.
+	if output != "" && output != "-" && rejects != "" {
+		if p, q := newPath(output), newPath(rejects); p != "" && p == q {
+			return usageErr("convtag tag -o FILE --rejects OTHER-FILE", "-o %s and --rejects %s are one file", output, rejects)
+		}
+	}
 	return nil
+}
+
+// newPath is the absolute path, its directory's links resolved, of a file
+// that does not exist yet, or "" for one that exists.
+func newPath(path string) string {
+	if _, err := os.Lstat(path); err == nil {
+		return ""
+	}
+	dir, err := filepath.EvalSymlinks(filepath.Dir(path))
+	if err != nil {
+		return ""
+	}
+	abs, err := filepath.Abs(filepath.Join(dir, filepath.Base(path)))
+	if err != nil {
+		return ""
+	}
+	return abs
 }
 
 // replacedFile reports whether -o path is written under a temporary name

@@ -212,6 +212,7 @@ func TestTagSameFile(t *testing.T) {
 		{"stdin as - is -o", []string{"-o", a, b, "-"}, a, "", exitUsage},
 		{"stdout is an input", []string{a}, "", a, exitUsage},
 		{"-o is the model", []string{"-o", m, a}, "", "", exitUsage},
+		{"new -o is new --rejects", []string{"-o", filepath.Join(dir, "new.jsonl"), "--rejects", filepath.Join(dir, ".", "new.jsonl"), a}, "", "", exitUsage},
 		{"same input twice", []string{"-o", b, a, a, link}, "", "", exitOK},
 		{"stdin from a file", []string{"-o", b}, a, "", exitOK},
 	} {
@@ -239,11 +240,14 @@ func TestTagSameFile(t *testing.T) {
 			t.Errorf("%s: exit %d, want %d (stderr %q)", c.name, code, c.code, errs)
 		}
 		if c.code == exitUsage {
-			if !strings.Contains(errs, "is the same file as") || !strings.Contains(errs, "\ntry: ") {
+			if !strings.Contains(errs, "is the same file as") && !strings.Contains(errs, "are one file") || !strings.Contains(errs, "\ntry: ") {
 				t.Errorf("%s: stderr %q", c.name, errs)
 			}
 			if got, _ := os.ReadFile(a); string(got) != content {
 				t.Errorf("%s: %s changed", c.name, a)
+			}
+			if _, err := os.Stat(filepath.Join(dir, "new.jsonl")); err == nil {
+				t.Errorf("%s: new.jsonl written", c.name)
 			}
 		}
 	}
