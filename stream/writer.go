@@ -292,7 +292,8 @@ func CreateOutputFile(path string) (*OutputFile, error) {
 	if t, err := filepath.EvalSymlinks(path); err == nil {
 		target = t
 	}
-	perm := os.FileMode(0o666)
+	var perm os.FileMode
+	replacing := false
 	if st, err := os.Stat(target); err == nil {
 		if !st.Mode().IsRegular() {
 			f, err := os.OpenFile(target, os.O_WRONLY|os.O_TRUNC, 0)
@@ -306,7 +307,7 @@ func CreateOutputFile(path string) (*OutputFile, error) {
 			return nil, err
 		}
 		f.Close()
-		perm = st.Mode().Perm()
+		perm, replacing = st.Mode().Perm(), true
 	}
 	dir, base := filepath.Split(target)
 	var rnd [4]byte
@@ -324,7 +325,7 @@ func CreateOutputFile(path string) (*OutputFile, error) {
 			}
 			return nil, fmt.Errorf("%s: create a temporary file beside it: %w", path, err)
 		}
-		if perm != 0o666 {
+		if replacing {
 			if err := f.Chmod(perm); err != nil {
 				f.Close()
 				os.Remove(tmp)

@@ -92,6 +92,7 @@ func TestOutputFileNameAndMode(t *testing.T) {
 		{"new.jsonl.gz", 0, 0o644},
 		{"private.jsonl", 0o600, 0o600},
 		{"group.jsonl.zst", 0o640, 0o640},
+		{"shared.jsonl", 0o666, 0o666}, // kept, though the umask would clear g+w, o+w
 	} {
 		path := filepath.Join(dir, c.name)
 		if c.prev != 0 {
