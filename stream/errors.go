@@ -15,6 +15,10 @@ var (
 	// ErrOutputClosed means the reader of the output went away (EPIPE);
 	// a filter should then end quietly.
 	ErrOutputClosed = errors.New("stream: output closed by its reader")
+	// ErrCutOutput means a compressed file to append to does not decode to
+	// its end (a killed writer cut its last gzip member or zstd frame);
+	// nothing is appended to it.
+	ErrCutOutput = errors.New("stream: compressed file is cut or corrupt")
 )
 
 // RecordError is a problem with one input record. Line counts from 1 within

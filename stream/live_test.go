@@ -185,7 +185,7 @@ func TestCompressedOutput(t *testing.T) {
 
 // A Switch swaps the Tagger between two blocks: no record is lost or
 // moved, records before the switch get the old tags, after it the new, and
-// the output file is reopened for appending.
+// the output file (with Append) is reopened for appending.
 func TestSwitchTagger(t *testing.T) {
 	dir := t.TempDir()
 	outPath := filepath.Join(dir, "out.txt")
@@ -193,7 +193,7 @@ func TestSwitchTagger(t *testing.T) {
 	pr, pw := io.Pipe()
 	done := make(chan error, 1)
 	go func() {
-		_, err := Run(context.Background(), Options{Tagger: newKeywordTagger(), Switch: sw, Output: outPath}, nil, pr, nil)
+		_, err := Run(context.Background(), Options{Tagger: newKeywordTagger(), Switch: sw, Output: outPath, Append: true}, nil, pr, nil)
 		done <- err
 	}()
 	swapped := newKeywordTagger()

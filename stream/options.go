@@ -161,11 +161,15 @@ type Options struct {
 	Pause time.Duration
 
 	// Output is a file to write instead of Run's writer ("" or "-": the
-	// writer). Compress chooses its compression.
+	// writer). Compress chooses its compression. Without Append, a regular
+	// or new file is written under a temporary name beside it and renamed
+	// onto it only when Run returns nil; on any error the file is left as
+	// it was. A device or FIFO is written in place.
 	Output   string
 	Compress Compress
 	// Append adds to an existing Output file instead of truncating it, for
-	// a filter that a log daemon restarts. Each write to an uncompressed
+	// a filter that a log daemon restarts; a compressed file must decode to
+	// its end first (else ErrCutOutput). Each write to an uncompressed
 	// output ends on a record boundary (a line over MaxLine aside), so a
 	// killed run leaves whole lines.
 	Append bool

@@ -720,7 +720,10 @@ func Run(ctx context.Context, opts Options, inputs []string, stdin io.Reader, st
 			werr = err
 		}
 	}
-	if err := out.close(); werr == nil && err != nil {
+	// A replaced Output file is put in place only when every input was
+	// read and written; otherwise it is left as it was.
+	commit := werr == nil && inErr == nil && !(c.stopped && ctx.Err() != nil)
+	if err := out.finish(commit); werr == nil && err != nil {
 		werr = err
 	}
 

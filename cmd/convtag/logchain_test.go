@@ -417,14 +417,14 @@ func TestRsyslogChainTermUnderLoad(t *testing.T) {
 	t.Logf("SIGTERM under load: %d of 3000 messages written, %d lost in flight", len(nums), 3000-len(nums))
 }
 
-// logrotate's way with `convtag tag -o FILE`: the file is moved while
+// logrotate's way with `convtag tag --append -o FILE`: the file is moved while
 // records stream in, then SIGHUP; the old file ends on a whole record, the
 // new one begins with the next, and nothing is lost or written twice.
 func TestTagRotateOnHUP(t *testing.T) {
 	dir := t.TempDir()
 	m := tagModel(t, dir, "m.safetensors", []string{"crossing", "weather"}, 1)
 	outPath := filepath.Join(dir, "tagged.jsonl")
-	p := start(t, "tag", "-m", m, "-o", outPath)
+	p := start(t, "tag", "-m", m, "--append", "-o", outPath)
 	const n = 300000
 	fed := make(chan struct{})
 	go func() {

@@ -7,6 +7,8 @@ import (
 	"io"
 	"os"
 	"os/signal"
+	"path/filepath"
+	"runtime"
 	"slices"
 	"sort"
 	"strings"
@@ -88,51 +90,54 @@ it out. Records that cannot be tagged pass through unchanged and are counted
 (or go to the --rejects file): malformed JSON, a text key holding a number,
 boolean, array or object, a line longer than 64 MiB. Empty and blank lines
 and JSON records without the text key pass through unchanged. With --keep,
-untagged records are left out too.
+untagged records are left out too. --scores, --top and --why go into JSON
+output only: with --format text they need --emit jsonl; with --format auto,
+text lines written as TSV go without them.
+
+No output file is lost either. Every input is opened, and no two of the
+inputs, -o, --rejects, the model and a redirected standard input or output
+may be one file (exit 2), before any output is created. Without --append,
+-o FILE and --rejects FILE are written to a temporary file beside FILE and
+renamed onto it only when every input was read and written (exit 0, or 3
+under --strict); after any other end FILE is left as it was, and the error
+says so. FILE thus appears at the end: for a live stream give --append,
+which writes in place. A .gz or .zst FILE to --append to must decode to its
+end (a killed run may have cut it); otherwise nothing is written, exit 1.
+A standard output closed at the start (>&-) is an error, exit 1.
 
 Signals: SIGINT and SIGTERM stop after writing whole lines, exit status 1.
 SIGHUP reopens the model file between two blocks (a file that fails any
-check of inspect --verify is reported and the old model kept) and reopens
-the --output file for appending. The model file is memory-mapped: replace
-it by rename (mv), as train -o does, never by writing over it. An in-place
-write changes or removes pages under the running filter: a shorter file
-stops it with exit status 1 after the whole records tagged so far, and a
-same-size overwrite would switch the model in the middle of a block.
+check of inspect --verify is reported and the old model kept) and, with
+--append, reopens the --output file. The model file is memory-mapped:
+replace it by rename (mv), as train -o does, never by writing over it. An
+in-place write changes or removes pages under the running filter: a shorter
+file stops it with exit status 1 after the whole records tagged so far, and
+a same-size overwrite would switch the model in the middle of a block.
 
 ` + exitHelp,
 		Example: `  convtag tag chat.jsonl > tagged.jsonl
   zstd -dc archive.jsonl.zst | convtag tag -m ferry.safetensors --keep weather
   convtag tag --format text --emit jsonl notes.txt
-  tail -F service.log | convtag tag -k msg --min-confidence 0.6 -o tagged.jsonl.gz`,
+  tail -F service.log | convtag tag -k msg --min-confidence 0.6 --append -o tagged.jsonl.gz`,
 		RunE: func(cmd *cobra.Command, args []string) error {
-			var err error
-			if o.Format, err = stream.ParseFormat(format); err != nil {
-				return usageErr("convtag tag --format auto|jsonl|text", "--format: %v", err)
-			}
-			if o.Emit, err = stream.ParseEmit(emit); err != nil {
-				return usageErr("convtag tag --emit tsv|jsonl", "--emit: %v", err)
-			}
-			if o.Compress, err = stream.ParseCompress(compress); err != nil {
-				return usageErr("convtag tag --compress auto|none|gzip|zstd", "--compress: %v", err)
-			}
-			if o.MinConfidence < 0 || o.MinConfidence > 1 {
-				return usageErr("convtag tag --min-confidence 0.7", "--min-confidence %v: want a probability from 0 to 1", o.MinConfidence)
-			}
-			if why < 0 || o.Top < 0 || o.Jobs < 0 || o.BlockSize < 0 {
-				return usageErr("convtag tag --help", "--top, --jobs and --batch must not be negative")
-			}
-			switch progress {
-			case "auto", "on", "off":
-			default:
-				return usageErr("convtag tag --progress auto|on|off", "--progress: unknown value %q", progress)
+			if err := checkTagFlags(&o, format, emit, compress, progress, output, why, textKeys); err != nil {
+				return err
 			}
 			o.TextKeys = textKeys
 			o.Keep, o.Drop = splitTags(keep), splitTags(drop)
 			o.Output = output
+			if output == "" || output == "-" {
+				if f, ok := a.stdout.(*os.File); ok && stdoutClosedAtStart(f) {
+					return withCode(exitFailure, errors.New("standard output is closed: the output would go nowhere (give -o FILE, or >/dev/null to discard it)"))
+				}
+			}
 
 			m, err := a.loadModel(modelPath)
 			if err != nil {
 				return err
+			}
+			if slices.Contains(m.Labels, o.UnsureTag) {
+				return usageErr("convtag tag --unsure-tag unsure", "--unsure-tag %q is one of the model's tags (%s): unsure records could not be told apart", o.UnsureTag, strings.Join(m.Labels, ", "))
 			}
 			tags := append(slices.Clone(m.Labels), o.UnsureTag)
 			for _, t := range append(slices.Clone(o.Keep), o.Drop...) {
@@ -143,21 +148,40 @@ same-size overwrite would switch the model in the middle of a block.
 			o.Tagger = newTagger(m, why)
 			o.Why = why > 0
 
+			// Every input is opened and checked, and no two of them and the
+			// outputs may be one file, before any output is created.
+			if err := checkInputs(a, args); err != nil {
+				return err
+			}
+			if err := checkSameFiles(a, args, modelPath, output, rejects); err != nil {
+				return err
+			}
+			existed := func(path string) bool { _, err := os.Stat(path); return err == nil }
+			var unchanged []string // files a failed run leaves as they were
+			if output != "" && output != "-" && !o.Append && replacedFile(output) {
+				unchanged = append(unchanged, leftMessage(output, existed(output)))
+			}
+			var rej *stream.OutputFile
 			if rejects != "" {
-				f, err := os.Create(rejects)
-				if err != nil {
+				rejExisted := existed(rejects)
+				if rej, err = stream.CreateOutputFile(rejects); err != nil {
 					return withCode(exitFailure, fmt.Errorf("--rejects: %w", err))
 				}
-				defer f.Close()
-				o.Rejects = f
+				defer rej.Discard() // after Commit it does nothing
+				if rej.Replaces() {
+					unchanged = append(unchanged, leftMessage(rejects, rejExisted))
+				}
+				o.Rejects = rej
 			}
 
-			shown, problems := 0, 0
-			var laterInputErrs []error
+			shown, problems, inputProblems := 0, 0, 0
 			o.OnError = func(err error) {
 				var ie *stream.InputError
 				if errors.As(err, &ie) {
-					laterInputErrs = append(laterInputErrs, err)
+					// Shown as they come: once each, in input order, and
+					// before an interruption could drop them.
+					inputProblems++
+					fmt.Fprintf(a.stderr, "convtag: %v\n", err)
 					return
 				}
 				problems++
@@ -196,23 +220,37 @@ same-size overwrite would switch the model in the middle of a block.
 			}
 
 			st, err := stream.Run(ctx, o, args, a.stdin, a.stdout)
+			if err == nil && rej != nil {
+				if err = rej.Commit(); err != nil {
+					err = fmt.Errorf("--rejects: %w", err)
+				}
+			}
 			if showStats {
 				writeStats(a.stderr, st)
 			}
-			for _, e := range laterInputErrs[min(1, len(laterInputErrs)):] {
-				fmt.Fprintf(a.stderr, "convtag: %v\n", e)
+			var ie *stream.InputError
+			if errors.As(err, &ie) && inputProblems > 0 {
+				err = fmt.Errorf("%d of %d inputs not read to the end", inputProblems, max(1, len(args)))
 			}
+			left := strings.Join(unchanged, "; ")
 			switch {
 			case errors.Is(err, stream.ErrOutputClosed):
+				if left != "" {
+					fmt.Fprintf(a.stderr, "convtag: %s\n", left)
+				}
 				return nil // the reader went away: end quietly, as filters do
 			case errors.Is(err, context.Canceled):
-				return withCode(exitFailure, errors.New("interrupted"))
+				err = errors.New("interrupted")
 			case err != nil:
-				return withCode(exitFailure, err)
 			case strict && st.Rejected > 0:
 				return withCode(exitRejected, fmt.Errorf("%d records rejected (--strict)", st.Rejected))
+			default:
+				return nil
 			}
-			return nil
+			if left != "" {
+				err = fmt.Errorf("%w; %s", err, left)
+			}
+			return withCode(exitFailure, err)
 		},
 	}
 	f := c.Flags()
@@ -230,15 +268,245 @@ same-size overwrite would switch the model in the middle of a block.
 	f.StringSliceVar(&drop, "drop", nil, "leave out records with one of these tags (TAG[,TAG])")
 	f.StringVar(&emit, "emit", "tsv", "how text lines are written: tsv (tag TAB confidence TAB line) or jsonl")
 	f.StringVarP(&output, "output", "o", "", "write to FILE (compressed by its suffix .gz or .zst)")
-	f.BoolVar(&o.Append, "append", false, "with --output: add to FILE instead of replacing it (for a filter a log daemon restarts)")
+	f.BoolVar(&o.Append, "append", false, "with --output: add to FILE in place, instead of replacing it when the run ends (for a live stream, or a filter a log daemon restarts)")
 	f.StringVar(&compress, "compress", "auto", "output compression: auto (by --output suffix), none, gzip or zstd")
-	f.IntVarP(&o.Jobs, "jobs", "j", 0, "workers (default: all cores)")
-	f.IntVar(&o.BlockSize, "batch", 0, "bytes of input a worker takes at a time (default 1048576)")
+	f.IntVarP(&o.Jobs, "jobs", "j", 0, "workers (default: all cores; at most 1024)")
+	f.IntVar(&o.BlockSize, "batch", 0, "bytes of input a worker takes at a time (default 1048576; at most 268435456)")
 	f.StringVar(&rejects, "rejects", "", "write records that cannot be tagged to FILE instead of the output")
 	f.BoolVar(&strict, "strict", false, "exit with status 3 at the end if any record was rejected")
 	f.StringVar(&progress, "progress", "auto", "progress bar on stderr: auto (when stderr is a terminal and the input size is known), on or off")
 	f.BoolVar(&showStats, "stats", false, "print a closing summary on stderr")
 	return c
+}
+
+// Bounds on the worker flags: beyond them a run only costs memory. Each
+// worker keeps three blocks of --batch bytes in flight (stream's window),
+// so their product is bounded too.
+const (
+	maxJobs     = 1024
+	maxBatch    = 256 << 20
+	maxInFlight = 4 << 30
+)
+
+// checkTagFlags turns the flag values that need no model into o, or
+// returns the usage error for the first that is wrong.
+func checkTagFlags(o *stream.Options, format, emit, compress, progress, output string, why int, textKeys []string) error {
+	var err error
+	if o.Format, err = stream.ParseFormat(format); err != nil {
+		return usageErr("convtag tag --format auto|jsonl|text", "--format: %v", err)
+	}
+	if o.Emit, err = stream.ParseEmit(emit); err != nil {
+		return usageErr("convtag tag --emit tsv|jsonl", "--emit: %v", err)
+	}
+	if o.Compress, err = stream.ParseCompress(compress); err != nil {
+		return usageErr("convtag tag --compress auto|none|gzip|zstd", "--compress: %v", err)
+	}
+	if !(o.MinConfidence >= 0 && o.MinConfidence <= 1) { // NaN fails both
+		return usageErr("convtag tag --min-confidence 0.7", "--min-confidence %v: want a probability from 0 to 1", o.MinConfidence)
+	}
+	for _, c := range []struct {
+		flag     string
+		v, limit int
+	}{{"--why", why, -1}, {"--top", o.Top, -1}, {"--jobs", o.Jobs, maxJobs}, {"--batch", o.BlockSize, maxBatch}} {
+		if c.v < 0 {
+			return usageErr("convtag tag --help", "%s %d: must not be negative", c.flag, c.v)
+		}
+		if c.limit > 0 && c.v > c.limit {
+			return usageErr("convtag tag --help", "%s %d: at most %d", c.flag, c.v, c.limit)
+		}
+	}
+	jobs, batch := o.Jobs, o.BlockSize
+	if jobs == 0 {
+		jobs = runtime.GOMAXPROCS(0)
+	}
+	if batch == 0 {
+		batch = stream.DefaultBlockSize
+	}
+	if n := int64(max(2, 3*jobs)) * int64(batch); n > maxInFlight {
+		return usageErr("convtag tag --help", "--jobs %d with --batch %d keeps %d MiB in flight: at most %d MiB", jobs, batch, n>>20, maxInFlight>>20)
+	}
+	switch progress {
+	case "auto", "on", "off":
+	default:
+		return usageErr("convtag tag --progress auto|on|off", "--progress: unknown value %q", progress)
+	}
+	if o.Append && (output == "" || output == "-") {
+		return usageErr("convtag tag --append -o FILE", "--append needs -o FILE: standard output is never truncated")
+	}
+	if o.Format == stream.InputText && o.Emit == stream.EmitTSV {
+		for _, c := range []struct {
+			flag string
+			on   bool
+		}{{"--scores", o.Scores}, {"--top", o.Top > 0}, {"--why", why > 0}} {
+			if c.on {
+				return usageErr("convtag tag --format text --emit jsonl "+c.flag+" ...", "%s: text lines written as TSV have no place for it", c.flag)
+			}
+		}
+	}
+	// The keys added to every record; none may be empty or another's.
+	type key struct{ flag, name string }
+	keys := []key{{"--tag-key", o.TagKey}, {"--confidence-key", o.ConfidenceKey}}
+	if o.Scores {
+		keys = append(keys, key{"--scores", "scores"})
+	}
+	if o.Top > 0 {
+		keys = append(keys, key{"--top", "top"})
+	}
+	if why > 0 {
+		keys = append(keys, key{"--why", "why"})
+	}
+	for i, k := range keys {
+		if k.name == "" {
+			return usageErr("convtag tag "+k.flag+" NAME", "%s: empty key", k.flag)
+		}
+		for _, prev := range keys[:i] {
+			if prev.name == k.name {
+				return usageErr("convtag tag "+k.flag+" OTHER-NAME", "%s %q: %s adds that key already", k.flag, k.name, prev.flag)
+			}
+		}
+	}
+	for _, tk := range textKeys {
+		parts := strings.Split(tk, ".")
+		if slices.Contains(parts, "") {
+			return usageErr("convtag tag -k msg or -k body.text", "-k %q: empty key or empty part of a dotted path", tk)
+		}
+		for _, k := range keys {
+			if parts[0] == k.name {
+				return usageErr("convtag tag "+k.flag+" OTHER-NAME", "-k %q: the key %s adds would overwrite the text", tk, k.flag)
+			}
+		}
+	}
+	return nil
+}
+
+// checkInputs opens every input file and checks that it can be read (no
+// directory), so that a missing one stops the run before any output file
+// is created or changed.
+func checkInputs(a *app, inputs []string) error {
+	var bad []string
+	for _, name := range inputs {
+		if name == "-" {
+			continue
+		}
+		f, err := os.Open(name)
+		if err == nil {
+			var st os.FileInfo
+			if st, err = f.Stat(); err == nil && st.IsDir() {
+				err = errors.New("is a directory")
+			}
+			f.Close()
+		}
+		if err != nil {
+			var pe *os.PathError
+			if errors.As(err, &pe) {
+				err = pe.Err
+			}
+			bad = append(bad, fmt.Sprintf("%s: %v", name, err))
+		}
+	}
+	if len(bad) == 0 {
+		return nil
+	}
+	for _, b := range bad[:len(bad)-1] {
+		fmt.Fprintf(a.stderr, "convtag: %s\n", b)
+	}
+	return withCode(exitFailure, fmt.Errorf("%s; nothing was written", bad[len(bad)-1]))
+}
+
+// checkSameFiles refuses a run where an output (-o, --rejects, or
+// standard output redirected to a file) is the same file as an input, the
+// model or the other output: it would be overwritten while being read, or
+// hold two streams at once. Files are compared by device and inode
+// (os.SameFile); only regular files count (a device like /dev/null may be
+// both).
+func checkSameFiles(a *app, inputs []string, modelPath, output, rejects string) error {
+	type file struct {
+		what string
+		st   os.FileInfo
+	}
+	stat := func(what, path string) []file {
+		if st, err := os.Stat(path); err == nil && st.Mode().IsRegular() {
+			return []file{{what, st}}
+		}
+		return nil
+	}
+	fstat := func(what string, f any) []file {
+		if f, ok := f.(*os.File); ok {
+			if st, err := f.Stat(); err == nil && st.Mode().IsRegular() {
+				return []file{{what, st}}
+			}
+		}
+		return nil
+	}
+	var ins, outs []file
+	usesStdin := len(inputs) == 0
+	for _, name := range inputs {
+		if name == "-" {
+			usesStdin = true
+			continue
+		}
+		ins = append(ins, stat("input "+name, name)...)
+	}
+	if usesStdin {
+		ins = append(ins, fstat("standard input", a.stdin)...)
+	}
+	if modelPath != "" {
+		ins = append(ins, stat("model "+modelPath, modelPath)...)
+	}
+	if output == "" || output == "-" {
+		outs = append(outs, fstat("standard output", a.stdout)...)
+	} else {
+		outs = append(outs, stat("-o "+output, output)...)
+	}
+	if rejects != "" {
+		outs = append(outs, stat("--rejects "+rejects, rejects)...)
+	}
+	for i, o := range outs {
+		for _, other := range append(slices.Clone(outs[:i]), ins...) {
+			if os.SameFile(o.st, other.st) {
+				return usageErr("convtag tag -o NEW-FILE ..., then mv NEW-FILE over the old one", "%s is the same file as %s", o.what, other.what)
+			}
+		}
+	}
+	// Two outputs that do not exist yet are one file when their paths,
+	// with the directory's links resolved, are equal.
+	if output != "" && output != "-" && rejects != "" {
+		if p, q := newPath(output), newPath(rejects); p != "" && p == q {
+			return usageErr("convtag tag -o FILE --rejects OTHER-FILE", "-o %s and --rejects %s are one file", output, rejects)
+		}
+	}
+	return nil
+}
+
+// newPath is the absolute path, its directory's links resolved, of a file
+// that does not exist yet, or "" for one that exists.
+func newPath(path string) string {
+	if _, err := os.Lstat(path); err == nil {
+		return ""
+	}
+	dir, err := filepath.EvalSymlinks(filepath.Dir(path))
+	if err != nil {
+		return ""
+	}
+	abs, err := filepath.Abs(filepath.Join(dir, filepath.Base(path)))
+	if err != nil {
+		return ""
+	}
+	return abs
+}
+
+// replacedFile reports whether -o path is written under a temporary name
+// (a regular file, or none yet) rather than in place (a device, a FIFO).
+func replacedFile(path string) bool {
+	st, err := os.Stat(path)
+	return err != nil || st.Mode().IsRegular()
+}
+
+func leftMessage(path string, existed bool) string {
+	if existed {
+		return path + " left unchanged"
+	}
+	return path + " not written"
 }
 
 func splitTags(list []string) []string {
