@@ -141,7 +141,7 @@ func TestEmbedJSONAndProgress(t *testing.T) {
 	}
 	for _, want := range []string{
 		"1 records skipped",
-		in + ":12: stream: malformed JSON",
+		in + ":12: malformed JSON",
 		"counting words:",
 		"epoch 2/2: 100.0%",
 		"learning rate",

@@ -112,7 +112,7 @@ func TestTagFlags(t *testing.T) {
 	if !strings.HasPrefix(lines[1], `{"text":"wind and rain",`) {
 		t.Errorf("--emit jsonl: %q", lines[1])
 	}
-	if !strings.Contains(errs, "stdin:3: stream: malformed JSON") || !strings.Contains(errs, "records in") {
+	if !strings.Contains(errs, "stdin:3: malformed JSON") || !strings.Contains(errs, "records in") {
 		t.Errorf("stderr %q", errs)
 	}
 
