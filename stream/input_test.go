@@ -1,9 +1,11 @@
 package stream
 
 import (
+	"encoding/json"
 	"errors"
 	"strings"
 	"testing"
+	"unicode"
 )
 
 // Messages for a person on stderr carry no package prefix, and still
@@ -71,5 +73,127 @@ func TestReadLabelledRejectsBadLabels(t *testing.T) {
 				t.Errorf("problem %q, want %q (%v)", p, c.msg, c.want)
 			}
 		})
+	}
+}
+
+// Under InputAuto a line that starts with '{' but does not begin the way a
+// JSON object does (RFC 8259: '{' then a quoted key or '}') is prose and is
+// tagged exactly as --format text tags it; a line that begins like an
+// object but is broken stays a malformed record, and --format jsonl keeps
+// every invalid line a reject.
+func TestAutoBraceProseIsText(t *testing.T) {
+	for _, c := range []struct {
+		line      string
+		format    InputFormat
+		text      bool // tagged as a text line
+		malformed bool
+	}{
+		{"{sigh} my card was declined at the ferry desk", InputAuto, true, false},
+		{"  {{template}} rain again", InputAuto, true, false},
+		{"{sigh} my card was declined", InputJSONL, false, true},
+		{`{"text":"fog at the harbour"`, InputAuto, false, true},
+		{`{ "text" fog`, InputAuto, false, true},
+		{`{} fog`, InputAuto, false, true},
+		{"\x1e{sigh}", InputAuto, false, true},
+	} {
+		in := "{\"text\":\"ferry\"}\n" + c.line + "\nwind\n"
+		got, st, _ := runString(t, Options{Format: c.format, Jobs: 1}, in)
+		lines := strings.Split(got, "\n")
+		if len(lines) != 4 {
+			t.Fatalf("%q: %d lines out: %q", c.line, len(lines)-1, got)
+		}
+		if c.text {
+			want, _, _ := runString(t, Options{Format: InputText, Jobs: 1}, c.line+"\n")
+			if lines[1]+"\n" != want {
+				t.Errorf("%q: written %q, --format text writes %q", c.line, lines[1], want)
+			}
+		} else if lines[1] != c.line {
+			t.Errorf("%q: written %q, want it unchanged", c.line, lines[1])
+		}
+		wantText, wantMal := int64(1), int64(0) // "wind" is text
+		if c.text {
+			wantText++
+		}
+		if c.malformed {
+			wantMal = 1
+		}
+		if c.format == InputJSONL {
+			wantText, wantMal = 0, 2 // "wind" is malformed too
+		}
+		if st.Text != wantText || st.Malformed != wantMal || st.Records != 3 {
+			t.Errorf("%q: %d text, %d malformed of %d; want %d, %d of 3", c.line, st.Text, st.Malformed, st.Records, wantText, wantMal)
+		}
+	}
+}
+
+// wordTagger is keywordTagger whose scorers count words: runs of letters
+// or digits.
+type wordTagger struct{ *keywordTagger }
+
+func (t wordTagger) NewScorer() Scorer { return &wordScorer{keywordScorer: t.keywordTagger.NewScorer().(*keywordScorer)} }
+
+type wordScorer struct {
+	*keywordScorer
+	words int
+}
+
+func (s *wordScorer) Score(text []byte) []float32 {
+	s.words = len(strings.FieldsFunc(string(text), func(r rune) bool { return !unicode.IsLetter(r) && !unicode.IsDigit(r) }))
+	return s.keywordScorer.Score(text)
+}
+
+func (s *wordScorer) Words() int { return s.words }
+
+// A text without a word gets the unsure tag, confidence 0 and no scores,
+// whether it is a JSON value or a text line; blank lines still pass
+// through untouched.
+func TestNoWordsIsUnsure(t *testing.T) {
+	for _, c := range []struct {
+		line    string
+		noWords bool
+	}{
+		{`{"text":"!!!"}`, true},
+		{`{"text":""}`, true},
+		{`{"text":" \t "}`, true},
+		{`{"text":"?!","more":"x"}`, true},
+		{`{"text":"ferry!!!"}`, false},
+		{`{"text":"wind"}`, false},
+	} {
+		for _, format := range []InputFormat{InputAuto, InputText} {
+			in := c.line + "\n"
+			got, st, errs := runString(t, Options{Tagger: wordTagger{newKeywordTagger()}, Format: format, Emit: EmitJSONL, Scores: true, Top: 2, UnsureTag: "hmm", Jobs: 1}, in)
+			if len(errs) > 0 {
+				t.Fatal(errs)
+			}
+			var rec struct {
+				Text       string
+				Tag        string
+				Confidence float64
+				Scores     map[string]float64
+				Top        []any
+			}
+			// encoding/json is the reference reader of the output.
+			if err := json.Unmarshal([]byte(got), &rec); err != nil {
+				t.Fatalf("%q: output %q: %v", c.line, got, err)
+			}
+			// Under InputText the whole line is the text, and its key
+			// is a word.
+			empty := c.noWords && format == InputAuto
+			if empty != (rec.Tag == "hmm") || empty != (st.NoWords == 1) || st.Tags["hmm"] != st.NoWords {
+				t.Errorf("%q format %d: tag %q, %d no words, tags %v; no words: %v", c.line, format, rec.Tag, st.NoWords, st.Tags, empty)
+			}
+			if empty && (rec.Confidence != 0 || len(rec.Scores) != 0 || len(rec.Top) != 0) {
+				t.Errorf("%q: confidence %v, scores %v, top %v; want 0 and none", c.line, rec.Confidence, rec.Scores, rec.Top)
+			}
+			if !empty && (rec.Confidence == 0 || len(rec.Scores) != 3) {
+				t.Errorf("%q: confidence %v, scores %v", c.line, rec.Confidence, rec.Scores)
+			}
+		}
+	}
+	for _, line := range []string{"...", "¡¿—!"} {
+		got, st, _ := runString(t, Options{Tagger: wordTagger{newKeywordTagger()}, Jobs: 1}, line+"\n\n  \n")
+		if want := "unsure\t0.0000\t" + line + "\n\n  \n"; got != want || st.NoWords != 1 || st.Blank != 2 {
+			t.Errorf("%q: %q (%d no words, %d blank), want %q", line, got, st.NoWords, st.Blank, want)
+		}
 	}
 }

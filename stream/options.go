@@ -140,7 +140,9 @@ type Options struct {
 	WhyKey string
 	// MinConfidence: a record whose best probability is below it gets
 	// UnsureTag ("unsure") as its tag; its confidence stays the best
-	// probability.
+	// probability. A text without a word (only punctuation, or empty, as
+	// the Scorer counts words when it is a WordCounter) gets UnsureTag with
+	// confidence 0, an empty Scores object and empty Top and Why arrays.
 	MinConfidence float64
 	UnsureTag     string
 	// Keep, when not empty, writes only records whose tag is in it; Drop
@@ -216,6 +218,8 @@ type Stats struct {
 	CRLF        int64            // records ending in "\r\n"
 	InvalidUTF8 int64            // tagged texts that were not valid UTF-8
 	Passed      int64            // records written unchanged, without a tag
+	Text        int64            // lines read as text (not JSON), tagged
+	NoWords     int64            // tagged texts without a word: UnsureTag, confidence 0
 	Bytes       int64            // decoded input bytes
 	Elapsed     time.Duration
 }

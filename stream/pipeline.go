@@ -152,6 +152,7 @@ type worker struct {
 	cfg    *config
 	ts     *taggerState
 	sc     Scorer
+	wc     WordCounter // sc, when it can count words; else nil
 	scan   scanner
 	sp     splicer
 	text   []byte
@@ -160,6 +161,7 @@ type worker struct {
 	order  []int
 	probs  []float32 // the last Score's result, cut to the labels
 	best   int       // index of the highest of probs
+	empty  bool      // the last text scored had no words
 	passOK bool      // untagged records are written
 }
 
@@ -183,6 +185,7 @@ func (w *worker) process(b *block) {
 	if b.tagger != w.ts {
 		w.ts = b.tagger
 		w.sc = w.ts.t.NewScorer()
+		w.wc, _ = w.sc.(WordCounter)
 	}
 	if n := len(w.ts.labels); cap(b.tags) < n {
 		b.tags = make([]int64, n)
@@ -289,6 +292,12 @@ func (w *worker) jsonRecord(b *block, line, term []byte) {
 	lead := seqPrefix(line)
 	obj := line[lead:]
 	if ok, e := w.scan.validObject(obj); !ok {
+		if w.cfg.o.Format == InputAuto && lead == 0 && !objectStart(obj) {
+			// Braces in prose ("{sigh} my card was declined"), not a
+			// broken record: a text line.
+			w.textRecord(b, line, term)
+			return
+		}
 		b.n.malformed++
 		w.problem(b, line, term, fmt.Errorf("%w: %s at column %d", ErrMalformed, e.msg, lead+e.off+1))
 		return
@@ -344,7 +353,21 @@ func (w *worker) jsonRecord(b *block, line, term []byte) {
 	b.n.written++
 }
 
+// objectStart reports whether obj begins the way a JSON object does: '{',
+// then a quoted key or '}' (spaces allowed between). Under InputAuto a
+// line that begins so but is not valid is a broken record (malformed), any
+// other line starting with '{' is text.
+func objectStart(obj []byte) bool {
+	i := skipSpace(obj, 0)
+	if i >= len(obj) || obj[i] != '{' {
+		return false
+	}
+	i = skipSpace(obj, i+1)
+	return i < len(obj) && (obj[i] == '"' || obj[i] == '}')
+}
+
 func (w *worker) textRecord(b *block, line, term []byte) {
+	b.n.text++
 	tag, ok := w.score(b, line)
 	if !ok {
 		return
@@ -376,6 +399,13 @@ func (w *worker) score(b *block, text []byte) (int, bool) {
 	}
 	probs := w.sc.Score(text)
 	n := min(len(probs), len(w.ts.labels)-1)
+	w.empty = w.wc != nil && w.wc.Words() == 0
+	if w.empty {
+		// No words: the model's answer for an empty input says nothing
+		// about this record.
+		b.n.noWords++
+		n = 0
+	}
 	w.probs = probs[:n]
 	best := 0
 	for i := 1; i < n; i++ {
@@ -446,7 +476,7 @@ func (w *worker) setFields(tag int) {
 		i++
 	}
 	if w.cfg.o.Why {
-		if ex, ok := w.sc.(Explainer); ok {
+		if ex, ok := w.sc.(Explainer); ok && !w.empty {
 			w.fields[i].val = ex.AppendWhy(w.fields[i].val[:0])
 		} else {
 			w.fields[i].val = append(w.fields[i].val[:0], "[]"...)
@@ -696,6 +726,7 @@ func Run(ctx context.Context, opts Options, inputs []string, stdin io.Reader, st
 	stats.Records, stats.Written, stats.Dropped = tot.records, tot.written, tot.dropped
 	stats.Rejected, stats.Malformed, stats.NotString, stats.TooLong = tot.rejected, tot.malformed, tot.notString, tot.tooLong
 	stats.NoText, stats.Blank, stats.CRLF, stats.InvalidUTF8, stats.Passed = tot.noText, tot.blank, tot.crlf, tot.invalidUTF8, tot.passed
+	stats.Text, stats.NoWords = tot.text, tot.noWords
 	stats.Elapsed = time.Since(start)
 	switch {
 	case werr != nil:

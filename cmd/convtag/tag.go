@@ -43,6 +43,10 @@ type predictorScorer struct{ p *model.Predictor }
 
 func (s predictorScorer) Score(text []byte) []float32 { return s.p.Predict(text) }
 
+// Words tells the pipeline that a text without a token gets the unsure tag
+// (stream.WordCounter).
+func (s predictorScorer) Words() int { return s.p.TokenCount() }
+
 // maxShownProblems caps the record problems printed on stderr; --stats
 // has the counts of all of them.
 const maxShownProblems = 20
@@ -68,6 +72,10 @@ before its closing brace (an existing key of the same name gets the new
 value in place). A text line is written as tag, TAB, confidence, TAB, the
 line; or, with --emit jsonl, as {"text": line, "tag": ..., "confidence": ...}.
 A CR before the newline stays in the record and is not part of the text.
+Under --format auto a line starting with '{' is JSON; one that does not parse
+and does not begin like an object ('{' then a quoted key or '}'), such as
+"{sigh} my card was declined", is a text line. A text in which the model
+finds no word (empty, punctuation only) gets the --unsure-tag, confidence 0.
 A text key holding an array of byte values (0 to 255), as journalctl -o json
 writes a message that is not valid UTF-8, is tagged on those bytes; a record
 starting with the record separator 0x1E (journalctl -o json-seq) is JSON, and
@@ -209,7 +217,7 @@ the old model kept) and reopens the --output file for appending.
 	f.IntVar(&o.Top, "top", 0, `add the N best labels, best first, as an array under "top" (JSON output)`)
 	f.IntVar(&why, "why", 0, `add the N word windows that weighed most for the tag, as an array under "why" (JSON output)`)
 	f.Float64Var(&o.MinConfidence, "min-confidence", 0, "below this probability the record gets the --unsure-tag")
-	f.StringVar(&o.UnsureTag, "unsure-tag", "unsure", "tag for records below --min-confidence")
+	f.StringVar(&o.UnsureTag, "unsure-tag", "unsure", "tag for records below --min-confidence and texts without a word")
 	f.StringSliceVar(&keep, "keep", nil, "write only records with one of these tags (TAG[,TAG])")
 	f.StringSliceVar(&drop, "drop", nil, "leave out records with one of these tags (TAG[,TAG])")
 	f.StringVar(&emit, "emit", "tsv", "how text lines are written: tsv (tag TAB confidence TAB line) or jsonl")
@@ -325,6 +333,8 @@ func writeStats(w io.Writer, st stream.Stats) {
 	p("passed through", st.Passed)
 	p("  no text", st.NoText)
 	p("  blank", st.Blank)
+	p("text lines", st.Text)
+	p("no words", st.NoWords)
 	p("CRLF lines", st.CRLF)
 	p("invalid UTF-8", st.InvalidUTF8)
 	p("seconds", fmt.Sprintf("%.3f", st.Elapsed.Seconds()))
