@@ -58,6 +58,7 @@ type block struct {
 	n        counts
 	tags     []int64 // per label, then unsure
 	errs     []lineErr
+	kn       keyNote // text keys seen, while Options.Warn waits for a decision
 }
 
 func (b *block) reset() {

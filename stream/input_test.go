@@ -3,6 +3,7 @@ package stream
 import (
 	"encoding/json"
 	"errors"
+	"strconv"
 	"strings"
 	"testing"
 	"unicode"
@@ -130,7 +131,9 @@ func TestAutoBraceProseIsText(t *testing.T) {
 // or digits.
 type wordTagger struct{ *keywordTagger }
 
-func (t wordTagger) NewScorer() Scorer { return &wordScorer{keywordScorer: t.keywordTagger.NewScorer().(*keywordScorer)} }
+func (t wordTagger) NewScorer() Scorer {
+	return &wordScorer{keywordScorer: t.keywordTagger.NewScorer().(*keywordScorer)}
+}
 
 type wordScorer struct {
 	*keywordScorer
@@ -194,6 +197,70 @@ func TestNoWordsIsUnsure(t *testing.T) {
 		got, st, _ := runString(t, Options{Tagger: wordTagger{newKeywordTagger()}, Jobs: 1}, line+"\n\n  \n")
 		if want := "unsure\t0.0000\t" + line + "\n\n  \n"; got != want || st.NoWords != 1 || st.Blank != 2 {
 			t.Errorf("%q: %q (%d no words, %d blank), want %q", line, got, st.NoWords, st.Blank, want)
+		}
+	}
+}
+
+// A wrong text key: when none of the first 1,000 JSON records (or of all,
+// when fewer) has a value at any key, Warn is told once, with the keys the
+// records have; every record still passes through unchanged.
+func TestWrongTextKeyWarns(t *testing.T) {
+	recs := func(n int, f func(i int) string) string {
+		var b strings.Builder
+		for i := range n {
+			b.WriteString(f(i) + "\n")
+		}
+		return b.String()
+	}
+	plain := func(i int) string { return `{"message":"fog at the quay","ts":` + strconv.Itoa(i) + `,"host":"pier-2"}` }
+	textAt := func(k int) func(int) string {
+		return func(i int) string {
+			if i == k {
+				return `{"msg":"wind","ts":1}`
+			}
+			return plain(i)
+		}
+	}
+	for _, c := range []struct {
+		name string
+		in   string
+		keys []string
+		want string // "" for no warning
+	}{
+		{"1,500 without the key", recs(1500, plain), []string{"msg"}, `none of the first 1,000 JSON records has text at "msg"; their keys: message, ts, host`},
+		{"exactly 1,000", recs(1000, plain), []string{"msg"}, `none of the first 1,000 JSON records has text at "msg"; their keys: message, ts, host`},
+		{"fewer", recs(3, plain), []string{"msg", "body.text"}, `none of the 3 JSON records has text at "msg" or "body.text"; their keys: message, ts, host`},
+		{"one", recs(1, plain), nil, `the only JSON record has no text at "text"; their keys: message, ts, host`},
+		{"text in record 1,000", recs(1200, textAt(999)), []string{"msg"}, ""},
+		{"text in record 1,001 only", recs(1200, textAt(1000)), []string{"msg"}, `none of the first 1,000 JSON records has text at "msg"; their keys: message, ts, host`},
+		{"key present, not a string", recs(5, func(i int) string { return `{"msg":5}` }), []string{"msg"}, ""},
+		{"text lines only", recs(5, func(i int) string { return "ferry late" }), []string{"msg"}, ""},
+		{"null is no text", recs(2, func(i int) string { return `{"msg":null,"m":"x"}` }), []string{"msg"}, `none of the 2 JSON records has text at "msg"; their keys: msg, m`},
+		{"keys of later records, escaped and odd", recs(3, func(i int) string {
+			return []string{`{"a":1}`, `{"b\u00e9":2,"a":3}`, `{"two words":1,"":2,"new\nline":3}`}[i]
+		}), nil, `none of the 3 JSON records has text at "text"; their keys: a, bé, "two words", "", "new\nline"`},
+		{"many keys", recs(20, func(i int) string { return `{"k` + strconv.Itoa(i) + `":1}` }), nil,
+			`none of the 20 JSON records has text at "text"; their keys: k0, k1, k2, k3, k4, k5, k6, k7, k8, k9, k10, k11 and 8 more`},
+		{"no keys", recs(2, func(i int) string { return `{}` }), nil, `none of the 2 JSON records has text at "text"; they have no keys`},
+	} {
+		for _, jobs := range []int{1, 3} {
+			var warns []string
+			o := Options{TextKeys: c.keys, Jobs: jobs, BlockSize: 700, Warn: func(m string) { warns = append(warns, m) }}
+			out, _, _ := runString(t, o, c.in)
+			if c.want == "" && len(warns) != 0 || c.want != "" && (len(warns) != 1 || warns[0] != c.want) {
+				t.Errorf("%s -j %d: warnings %q, want %q", c.name, jobs, warns, c.want)
+			}
+			// Every record without text passes through unchanged.
+			inLines, outLines := strings.Split(c.in, "\n"), strings.Split(out, "\n")
+			if len(outLines) != len(inLines) {
+				t.Fatalf("%s -j %d: %d lines out of %d", c.name, jobs, len(outLines), len(inLines))
+			}
+			for i := range inLines {
+				if c.want != "" && inLines[i] != outLines[i] && !strings.Contains(inLines[i], `"msg":"wind"`) {
+					t.Errorf("%s -j %d: line %d changed: %q", c.name, jobs, i+1, outLines[i])
+					break
+				}
+			}
 		}
 	}
 }

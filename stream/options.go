@@ -178,6 +178,12 @@ type Options struct {
 	// OnError is called, in input order, from one goroutine, with each
 	// *RecordError and *InputError. It may be nil.
 	OnError func(error)
+	// Warn, if set, is called at most once, from the goroutine that calls
+	// OnError, when none of the first 1,000 JSON records (or of all of
+	// them, when there are fewer) has a value at any TextKeys path: most
+	// likely a wrong key. The message names the keys and lists the
+	// records' own top-level keys. The records pass through as always.
+	Warn func(msg string)
 	// Progress, if set, is called after each block is written with the raw
 	// input bytes read so far (compressed size for compressed input) and
 	// the records written so far.

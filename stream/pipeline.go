@@ -30,6 +30,8 @@ type config struct {
 	sw                         *Switch
 	keep, drop                 map[string]bool
 	topTagKey, topConfKeyBytes []byte // `{"tag":` and `,"confidence":` for --top entries
+
+	keyDone atomic.Bool // the wrong-key check is decided: workers stop noting keys
 }
 
 func newConfig(o Options) (*config, error) {
@@ -332,6 +334,9 @@ func (w *worker) jsonRecord(b *block, line, term []byte) {
 			badPath, badKind = p, obj[s]
 		}
 	}
+	if w.cfg.o.Warn != nil && !w.cfg.keyDone.Load() {
+		w.key = b.kn.note(obj, found || badPath >= 0, w.key)
+	}
 	if !found {
 		if badPath >= 0 {
 			b.n.notString++
@@ -505,6 +510,14 @@ func kindName(c byte) string {
 	return "a number"
 }
 
+// cmpKeys is keys, or the default text key when there are none.
+func cmpKeys(keys []string) []string {
+	if len(keys) == 0 {
+		return []string{"text"}
+	}
+	return keys
+}
+
 func (o *Options) textKey(i int) string {
 	if len(o.TextKeys) == 0 {
 		return "text"
@@ -569,6 +582,7 @@ func Run(ctx context.Context, opts Options, inputs []string, stdin io.Reader, st
 	abortCtx, abort := context.WithCancelCause(context.Background())
 	defer abort(nil)
 	work := make(chan *block, cfg.jobs)
+	kw := &keyWatch{warn: opts.Warn, paths: cmpKeys(opts.TextKeys), done: &cfg.keyDone}
 	c := &cutter{cfg: cfg, chunks: chunks, chunkPool: chunkPool, free: free, work: work,
 		stop: ctx.Done(), abort: abortCtx.Done(), tagger: first}
 	if sw := cfg.sw; sw != nil {
@@ -595,6 +609,7 @@ func Run(ctx context.Context, opts Options, inputs []string, stdin io.Reader, st
 			curFile, lineBase = b.file, 0
 		}
 		tot.add(&b.n)
+		kw.add(&b.kn)
 		stats.Bytes += int64(len(b.in))
 		for i, n := range b.tags {
 			if n > 0 {
@@ -721,6 +736,9 @@ func Run(ctx context.Context, opts Options, inputs []string, stdin io.Reader, st
 	}
 	if err := out.close(); werr == nil && err != nil {
 		werr = err
+	}
+	if werr == nil && !c.stopped {
+		kw.finish()
 	}
 
 	stats.Records, stats.Written, stats.Dropped = tot.records, tot.written, tot.dropped

@@ -85,7 +85,8 @@ Every record read gives one record written, unless --keep or --drop leaves
 it out. Records that cannot be tagged pass through unchanged and are counted
 (or go to the --rejects file): malformed JSON, a text key holding a number,
 boolean, array or object, a line longer than 64 MiB. Empty and blank lines
-and JSON records without the text key pass through unchanged. With --keep,
+and JSON records without the text key pass through unchanged; when none of
+the first 1,000 JSON records has the key, one warning names the keys they have. With --keep,
 untagged records are left out too.
 
 Signals: SIGINT and SIGTERM stop after writing whole lines, exit status 1.
@@ -163,6 +164,7 @@ the old model kept) and reopens the --output file for appending.
 				}
 			}
 
+			o.Warn = func(msg string) { fmt.Fprintf(a.stderr, "convtag: %s\n", msg) }
 			ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
 			defer stop()
 			go func() { <-ctx.Done(); stop() }() // a second signal kills at once

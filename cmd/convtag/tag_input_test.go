@@ -73,3 +73,24 @@ func statLines(stderr string) map[string]string {
 	}
 	return m
 }
+
+// A wrong -k is told once on stderr, naming the key and the keys the
+// records have; the records pass through unchanged.
+func TestTagWrongKeyWarning(t *testing.T) {
+	m := tagModel(t, t.TempDir(), "m.safetensors", []string{"crossing", "weather"}, 1)
+	in := `{"message":"fog","ts":1}` + "\n" + `{"message":"ferry late","ts":2,"host":"quay"}` + "\n"
+	for _, c := range []struct {
+		key, want string
+	}{
+		{"msg", `convtag: none of the 2 JSON records has text at "msg"; their keys: message, ts, host` + "\n"},
+		{"message", ""},
+	} {
+		code, out, errs := runCmd(t, in, "tag", "-m", m, "-k", c.key)
+		if code != exitOK || errs != c.want {
+			t.Errorf("-k %s: exit %d, stderr %q, want %q", c.key, code, errs, c.want)
+		}
+		if c.want != "" && out != in {
+			t.Errorf("-k %s: out %q, want the records unchanged", c.key, out)
+		}
+	}
+}
