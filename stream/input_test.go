@@ -212,7 +212,9 @@ func TestWrongTextKeyWarns(t *testing.T) {
 		}
 		return b.String()
 	}
-	plain := func(i int) string { return `{"message":"fog at the quay","ts":` + strconv.Itoa(i) + `,"host":"pier-2"}` }
+	plain := func(i int) string {
+		return `{"message":"fog at the quay","ts":` + strconv.Itoa(i) + `,"host":"pier-2"}`
+	}
 	textAt := func(k int) func(int) string {
 		return func(i int) string {
 			if i == k {
