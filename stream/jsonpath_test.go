@@ -152,7 +152,7 @@ func checkPath(t *testing.T, b []byte, p string) {
 		t.Errorf("%s in %.80q: found %v, encoding/json says %v", p, b, ok, wantOK)
 		return
 	}
-	if !bytes.Contains(b, []byte(`\`)) {
+	if !bytes.Contains(b, []byte(`\`)) && canonicalIndexes(segs) {
 		if refOK := jsoniterGet(b, segs).LastError() == nil; refOK != ok {
 			t.Errorf("%s in %.80q: found %v, json-iterator says %v", p, b, ok, refOK)
 		}
@@ -174,6 +174,17 @@ func checkPath(t *testing.T, b []byte, p string) {
 			t.Errorf("%s in %q: decoded %q, encoding/json says %q", p, b, dec, str)
 		}
 	}
+}
+
+// canonicalIndexes reports whether no segment is a decimal with a leading
+// zero ("01"), which json-iterator does not read as findPath does.
+func canonicalIndexes(segs []string) bool {
+	for _, seg := range segs {
+		if len(seg) > 1 && seg[0] == '0' && seg[1] >= '0' && seg[1] <= '9' {
+			return false
+		}
+	}
+	return true
 }
 
 // jsoniterGet is json-iterator's Get with a decimal segment taken as an
@@ -239,13 +250,6 @@ func FuzzFindPath(f *testing.F) {
 		// UTF-8 it reads as U+FFFD where findPath keeps the bytes.
 		if ok, _ := s.validObject(b); !ok || !utf8.Valid(b) || bytes.Count(b, []byte("["))+bytes.Count(b, []byte("{")) > 1000 {
 			return
-		}
-		// json-iterator reads "01" as index 1, so keep indexes
-		// canonical for it.
-		for _, seg := range strings.Split(p, ".") {
-			if len(seg) > 1 && seg[0] == '0' && seg[1] >= '0' && seg[1] <= '9' {
-				return
-			}
 		}
 		checkPath(t, b, p)
 	})
