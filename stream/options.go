@@ -12,7 +12,9 @@ type InputFormat int
 
 const (
 	// InputAuto decides per line: a line whose first byte after spaces and
-	// tabs is '{' is a JSON record, any other line is text.
+	// tabs is '{' is a JSON record, any other line is text. A '{' line that
+	// is not valid JSON and does not begin like an object ('{' then a
+	// quoted key or '}') is text too: braces in prose.
 	InputAuto InputFormat = iota
 	// InputJSONL treats every line as a JSON record; a line that is not a
 	// valid JSON object is malformed.
