@@ -510,8 +510,8 @@ func kindName(c byte) string {
 	return "a number"
 }
 
-// cmpKeys is keys, or the default text key when there are none.
-func cmpKeys(keys []string) []string {
+// textKeysOrDefault is keys, or the default text key when there are none.
+func textKeysOrDefault(keys []string) []string {
 	if len(keys) == 0 {
 		return []string{"text"}
 	}
@@ -582,7 +582,7 @@ func Run(ctx context.Context, opts Options, inputs []string, stdin io.Reader, st
 	abortCtx, abort := context.WithCancelCause(context.Background())
 	defer abort(nil)
 	work := make(chan *block, cfg.jobs)
-	kw := &keyWatch{warn: opts.Warn, paths: cmpKeys(opts.TextKeys), done: &cfg.keyDone}
+	kw := &keyWatch{warn: opts.Warn, paths: textKeysOrDefault(opts.TextKeys), done: &cfg.keyDone}
 	c := &cutter{cfg: cfg, chunks: chunks, chunkPool: chunkPool, free: free, work: work,
 		stop: ctx.Done(), abort: abortCtx.Done(), tagger: first}
 	if sw := cfg.sw; sw != nil {

@@ -86,8 +86,8 @@ it out. Records that cannot be tagged pass through unchanged and are counted
 (or go to the --rejects file): malformed JSON, a text key holding a number,
 boolean, array or object, a line longer than 64 MiB. Empty and blank lines
 and JSON records without the text key pass through unchanged; when none of
-the first 1,000 JSON records has the key, one warning names the keys they have. With --keep,
-untagged records are left out too.
+the first 1,000 JSON records has the key, one warning names the keys they
+have. With --keep, untagged records are left out too.
 
 Signals: SIGINT and SIGTERM stop after writing whole lines, exit status 1.
 SIGHUP reopens the model file between two blocks (a bad file is reported and
