@@ -107,6 +107,12 @@ func (p *Predictor) PredictRows(rows []int32) []float32 {
 
 var padOnly = [1]int32{0}
 
+// TokenCount is the number of tokens the tokenizer found in the text of the
+// last Predict (or Explain) call; 0 means the text had no word, and the
+// probabilities are those of a padding-only input. PredictRows does not
+// change it.
+func (p *Predictor) TokenCount() int { return p.toks.Len() }
+
 // Logits returns the last prediction's logits, one per label.
 func (p *Predictor) Logits() []float32 { return p.logits }
 

@@ -8,7 +8,7 @@ import (
 // counts are one block's record counts; the writer adds them up in order.
 type counts struct {
 	records, written, dropped, malformed, notString, tooLong, noText,
-	blank, crlf, invalidUTF8, passed, rejected int64
+	blank, crlf, invalidUTF8, passed, rejected, text, noWords int64
 }
 
 func (c *counts) add(o *counts) {
@@ -24,6 +24,8 @@ func (c *counts) add(o *counts) {
 	c.invalidUTF8 += o.invalidUTF8
 	c.passed += o.passed
 	c.rejected += o.rejected
+	c.text += o.text
+	c.noWords += o.noWords
 }
 
 // lineErr is a problem with the block's line number line (from 0).
@@ -58,6 +60,7 @@ type block struct {
 	tags     []int64 // per label, then unsure
 	errs     []lineErr
 	fault    *FaultError // the Tagger's memory faulted: the run ends before this block
+	kn       keyNote     // text keys seen, while Options.Warn waits for a decision
 }
 
 func (b *block) reset() {

@@ -53,7 +53,7 @@ func TestBadInputLossless(t *testing.T) {
 		check func(Stats) bool
 		errIs error
 	}{
-		{"malformed JSON", "{\"a\":\n{bad}\n{\"text\":\"x\"} y\n{\"text\":\"ok ferry\"}\n", Options{},
+		{"malformed JSON", "{\"a\":\n{\"bad}\n{\"text\":\"x\"} y\n{\"text\":\"ok ferry\"}\n", Options{},
 			func(s Stats) bool { return s.Malformed == 3 && s.Tags["crossing"] == 1 && s.Passed == 3 }, ErrMalformed},
 		{"invalid UTF-8", "caf\xe9 ferry\n{\"text\":\"caf\xe9 fog\"}\n\xff\xfe\n", Options{},
 			func(s Stats) bool { return s.InvalidUTF8 == 3 && s.Written == 3 && s.Rejected == 0 }, nil},
@@ -98,10 +98,10 @@ func TestBadInputLossless(t *testing.T) {
 // With a rejects file, problem records go there, in order, and nowhere
 // else.
 func TestRejects(t *testing.T) {
-	in := "{\"text\":\"ferry\"}\n{bad\n{\"text\":1}\nfog\n" + strings.Repeat("z", 300) + "\n"
+	in := "{\"text\":\"ferry\"}\n{\"bad\n{\"text\":1}\nfog\n" + strings.Repeat("z", 300) + "\n"
 	var rej bytes.Buffer
 	out, st, _ := runString(t, Options{Rejects: &rej, MaxLine: 200, BlockSize: 64}, in)
-	if want := "{bad\n{\"text\":1}\n" + strings.Repeat("z", 300) + "\n"; rej.String() != want {
+	if want := "{\"bad\n{\"text\":1}\n" + strings.Repeat("z", 300) + "\n"; rej.String() != want {
 		t.Errorf("rejects %q, want %q", rej.String(), want)
 	}
 	if st.Rejected != 3 || st.Written != 2 || strings.Count(out, "\n") != 2 {
@@ -114,7 +114,7 @@ func TestErrorLineNumbers(t *testing.T) {
 	var b strings.Builder
 	for i := range 5000 {
 		if i%1000 == 999 {
-			b.WriteString("{oops\n")
+			b.WriteString("{\"oops\n")
 		} else {
 			b.WriteString("{\"text\":\"ferry\"}\n")
 		}

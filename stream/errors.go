@@ -3,6 +3,7 @@ package stream
 import (
 	"errors"
 	"fmt"
+	"strings"
 )
 
 // Sentinel errors. A RecordError's Err unwraps to one of the first four; Run's
@@ -30,8 +31,16 @@ type RecordError struct {
 	Err  error
 }
 
+// Error is "file:line: problem". The sentinels' package prefix is left
+// out: the message is for the person reading stderr, and errors.Is still
+// finds the sentinel.
 func (e *RecordError) Error() string {
-	return fmt.Sprintf("%s:%d: %v", e.File, e.Line, e.Err)
+	return fmt.Sprintf("%s:%d: %s", e.File, e.Line, bare(e.Err))
+}
+
+// bare is err's message without a leading "stream: ".
+func bare(err error) string {
+	return strings.TrimPrefix(err.Error(), "stream: ")
 }
 
 func (e *RecordError) Unwrap() error { return e.Err }
@@ -47,9 +56,9 @@ type InputError struct {
 
 func (e *InputError) Error() string {
 	if e.Line > 0 {
-		return fmt.Sprintf("%s: %v (after line %d; the partial line after it was not written)", e.File, e.Err, e.Line)
+		return fmt.Sprintf("%s: %s (after line %d; the partial line after it was not written)", e.File, bare(e.Err), e.Line)
 	}
-	return fmt.Sprintf("%s: %v", e.File, e.Err)
+	return fmt.Sprintf("%s: %s", e.File, bare(e.Err))
 }
 
 func (e *InputError) Unwrap() error { return e.Err }

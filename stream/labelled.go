@@ -9,6 +9,7 @@ import (
 	"io"
 	"slices"
 	"strings"
+	"unicode"
 )
 
 // Labelled-record formats.
@@ -20,12 +21,17 @@ const (
 // Problems with labelled records. A LabelledSet's Problems are
 // RecordErrors that unwrap to one of these (or to ErrMalformed).
 var (
-	ErrNoText      = errors.New("stream: record has no text")
-	ErrNoLabel     = errors.New("stream: record has no label")
-	ErrBadLabel    = errors.New("stream: label is not a string or an array of strings")
-	ErrNoTab       = errors.New("stream: no tab between label and text")
-	ErrNoRecords   = errors.New("stream: no usable labelled records")
-	ErrUnknownForm = errors.New("stream: unknown labelled-record format")
+	ErrNoText   = errors.New("stream: record has no text")
+	ErrNoLabel  = errors.New("stream: record has no label")
+	ErrBadLabel = errors.New("stream: label is not a string or an array of strings")
+	ErrNoTab    = errors.New("stream: no tab between label and text")
+	// ErrLabelControl: a label holds a control character (Unicode general
+	// category Cc: TAB, CR, LF, NUL, ESC, ...), which would break a TSV
+	// output line or a terminal.
+	ErrLabelControl = errors.New("stream: label has a control character")
+	ErrEmptyLabel   = errors.New("stream: empty label in the array")
+	ErrNoRecords    = errors.New("stream: no usable labelled records")
+	ErrUnknownForm  = errors.New("stream: unknown labelled-record format")
 )
 
 // LabelledOptions say how to read labelled records. The zero value reads
@@ -196,7 +202,20 @@ func (r *labelReader) tsv(b []byte) (string, []string, error) {
 	case len(bytes.TrimSpace(text)) == 0:
 		return "", nil, ErrNoText
 	}
-	return string(text), []string{string(bytes.TrimSpace(label))}, nil
+	l := string(bytes.TrimSpace(label))
+	if err := checkLabel(l); err != nil {
+		return "", nil, err
+	}
+	return string(text), []string{l}, nil
+}
+
+// checkLabel rejects a label (already trimmed of spaces) that holds a
+// control character.
+func checkLabel(l string) error {
+	if strings.ContainsFunc(l, func(r rune) bool { return unicode.Is(unicode.Cc, r) }) {
+		return fmt.Errorf("%w: %q", ErrLabelControl, l)
+	}
+	return nil
 }
 
 func (r *labelReader) jsonl(b []byte) (string, []string, error) {
@@ -237,7 +256,9 @@ func (r *labelReader) jsonl(b []byte) (string, []string, error) {
 }
 
 // decodeLabels reads a label value: a string, a number (its spelling) or
-// an array of those; empty strings and null are not labels.
+// an array of those; spaces around a label are trimmed. An empty string
+// and null are no label; an array element that is an empty string is an
+// error (ErrEmptyLabel), as is a label with a control character.
 func decodeLabels(raw []byte) ([]string, error) {
 	var v any
 	d := json.NewDecoder(bytes.NewReader(raw))
@@ -258,10 +279,13 @@ func decodeLabels(raw []byte) ([]string, error) {
 	}
 	var out []string
 	if arr, ok := v.([]any); ok {
-		for _, x := range arr {
+		for i, x := range arr {
 			s, err := one(x)
 			if err != nil {
 				return nil, err
+			}
+			if _, isStr := x.(string); isStr && s == "" {
+				return nil, fmt.Errorf("%w (element %d)", ErrEmptyLabel, i+1)
 			}
 			if s != "" {
 				out = append(out, s)
@@ -278,6 +302,11 @@ func decodeLabels(raw []byte) ([]string, error) {
 	}
 	if len(out) == 0 {
 		return nil, ErrNoLabel
+	}
+	for _, l := range out {
+		if err := checkLabel(l); err != nil {
+			return nil, err
+		}
 	}
 	return out, nil
 }

@@ -12,7 +12,9 @@ type InputFormat int
 
 const (
 	// InputAuto decides per line: a line whose first byte after spaces and
-	// tabs is '{' is a JSON record, any other line is text.
+	// tabs is '{' is a JSON record, any other line is text. A '{' line that
+	// is not valid JSON and does not begin like an object ('{' then a
+	// quoted key or '}') is text too: braces in prose.
 	InputAuto InputFormat = iota
 	// InputJSONL treats every line as a JSON record; a line that is not a
 	// valid JSON object is malformed.
@@ -140,7 +142,9 @@ type Options struct {
 	WhyKey string
 	// MinConfidence: a record whose best probability is below it gets
 	// UnsureTag ("unsure") as its tag; its confidence stays the best
-	// probability.
+	// probability. A text without a word (only punctuation, or empty, as
+	// the Scorer counts words when it is a WordCounter) gets UnsureTag with
+	// confidence 0, an empty Scores object and empty Top and Why arrays.
 	MinConfidence float64
 	UnsureTag     string
 	// Keep, when not empty, writes only records whose tag is in it; Drop
@@ -180,6 +184,12 @@ type Options struct {
 	// OnError is called, in input order, from one goroutine, with each
 	// *RecordError and *InputError. It may be nil.
 	OnError func(error)
+	// Warn, if set, is called at most once, from the goroutine that calls
+	// OnError, when none of the first 1,000 JSON records (or of all of
+	// them, when there are fewer) has a value at any TextKeys path: most
+	// likely a wrong key. The message names the keys and lists the
+	// records' own top-level keys. The records pass through as always.
+	Warn func(msg string)
 	// Progress, if set, is called after each block is written with the raw
 	// input bytes read so far (compressed size for compressed input) and
 	// the records written so far.
@@ -248,6 +258,8 @@ type Stats struct {
 	CRLF        int64            // records ending in "\r\n"
 	InvalidUTF8 int64            // tagged texts that were not valid UTF-8
 	Passed      int64            // records written unchanged, without a tag
+	Text        int64            // lines read as text (not JSON), tagged
+	NoWords     int64            // tagged texts without a word: UnsureTag, confidence 0
 	Bytes       int64            // decoded input bytes
 	Elapsed     time.Duration
 }

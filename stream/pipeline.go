@@ -30,6 +30,8 @@ type config struct {
 	sw                         *Switch
 	keep, drop                 map[string]bool
 	topTagKey, topConfKeyBytes []byte // `{"tag":` and `,"confidence":` for --top entries
+
+	keyDone atomic.Bool // the wrong-key check is decided: workers stop noting keys
 }
 
 func newConfig(o Options) (*config, error) {
@@ -152,6 +154,7 @@ type worker struct {
 	cfg    *config
 	ts     *taggerState
 	sc     Scorer
+	wc     WordCounter // sc, when it can count words; else nil
 	scan   scanner
 	sp     splicer
 	text   []byte
@@ -160,6 +163,7 @@ type worker struct {
 	order  []int
 	probs  []float32 // the last Score's result, cut to the labels
 	best   int       // index of the highest of probs
+	empty  bool      // the last text scored had no words
 	passOK bool      // untagged records are written
 }
 
@@ -183,6 +187,7 @@ func (w *worker) process(b *block) {
 	if b.tagger != w.ts {
 		w.ts = b.tagger
 		w.sc = w.ts.t.NewScorer()
+		w.wc, _ = w.sc.(WordCounter)
 	}
 	if n := len(w.ts.labels); cap(b.tags) < n {
 		b.tags = make([]int64, n)
@@ -289,6 +294,12 @@ func (w *worker) jsonRecord(b *block, line, term []byte) {
 	lead := seqPrefix(line)
 	obj := line[lead:]
 	if ok, e := w.scan.validObject(obj); !ok {
+		if w.cfg.o.Format == InputAuto && lead == 0 && !objectStart(obj) {
+			// Braces in prose ("{sigh} my card was declined"), not a
+			// broken record: a text line.
+			w.textRecord(b, line, term)
+			return
+		}
 		b.n.malformed++
 		w.problem(b, line, term, fmt.Errorf("%w: %s at column %d", ErrMalformed, e.msg, lead+e.off+1))
 		return
@@ -323,6 +334,9 @@ func (w *worker) jsonRecord(b *block, line, term []byte) {
 			badPath, badKind = p, obj[s]
 		}
 	}
+	if w.cfg.o.Warn != nil && !w.cfg.keyDone.Load() {
+		w.key = b.kn.note(obj, found || badPath >= 0, w.key)
+	}
 	if !found {
 		if badPath >= 0 {
 			b.n.notString++
@@ -344,7 +358,21 @@ func (w *worker) jsonRecord(b *block, line, term []byte) {
 	b.n.written++
 }
 
+// objectStart reports whether obj begins the way a JSON object does: '{',
+// then a quoted key or '}' (spaces allowed between). Under InputAuto a
+// line that begins so but is not valid is a broken record (malformed), any
+// other line starting with '{' is text.
+func objectStart(obj []byte) bool {
+	i := skipSpace(obj, 0)
+	if i >= len(obj) || obj[i] != '{' {
+		return false
+	}
+	i = skipSpace(obj, i+1)
+	return i < len(obj) && (obj[i] == '"' || obj[i] == '}')
+}
+
 func (w *worker) textRecord(b *block, line, term []byte) {
+	b.n.text++
 	tag, ok := w.score(b, line)
 	if !ok {
 		return
@@ -376,6 +404,13 @@ func (w *worker) score(b *block, text []byte) (int, bool) {
 	}
 	probs := w.sc.Score(text)
 	n := min(len(probs), len(w.ts.labels)-1)
+	w.empty = w.wc != nil && w.wc.Words() == 0
+	if w.empty {
+		// No words: the model's answer for an empty input says nothing
+		// about this record.
+		b.n.noWords++
+		n = 0
+	}
 	w.probs = probs[:n]
 	best := 0
 	for i := 1; i < n; i++ {
@@ -446,7 +481,7 @@ func (w *worker) setFields(tag int) {
 		i++
 	}
 	if w.cfg.o.Why {
-		if ex, ok := w.sc.(Explainer); ok {
+		if ex, ok := w.sc.(Explainer); ok && !w.empty {
 			w.fields[i].val = ex.AppendWhy(w.fields[i].val[:0])
 		} else {
 			w.fields[i].val = append(w.fields[i].val[:0], "[]"...)
@@ -473,6 +508,14 @@ func kindName(c byte) string {
 		return "a boolean"
 	}
 	return "a number"
+}
+
+// textKeysOrDefault is keys, or the default text key when there are none.
+func textKeysOrDefault(keys []string) []string {
+	if len(keys) == 0 {
+		return []string{"text"}
+	}
+	return keys
 }
 
 func (o *Options) textKey(i int) string {
@@ -555,6 +598,7 @@ func Run(ctx context.Context, opts Options, inputs []string, stdin io.Reader, st
 	abortCtx, abort := context.WithCancelCause(context.Background())
 	defer abort(nil)
 	work := make(chan *block, cfg.jobs)
+	kw := &keyWatch{warn: opts.Warn, paths: textKeysOrDefault(opts.TextKeys), done: &cfg.keyDone}
 	c := &cutter{cfg: cfg, chunks: chunks, chunkPool: chunkPool, free: free, work: work,
 		stop: ctx.Done(), abort: abortCtx.Done(), tagger: first, held: startHeld, gen: startGen}
 	var wg sync.WaitGroup
@@ -581,6 +625,7 @@ func Run(ctx context.Context, opts Options, inputs []string, stdin io.Reader, st
 			curFile, lineBase = b.file, 0
 		}
 		tot.add(&b.n)
+		kw.add(&b.kn)
 		stats.Bytes += int64(len(b.in))
 		for i, n := range b.tags {
 			if n > 0 {
@@ -726,10 +771,14 @@ func Run(ctx context.Context, opts Options, inputs []string, stdin io.Reader, st
 	if err := out.finish(commit); werr == nil && err != nil {
 		werr = err
 	}
+	if werr == nil && !c.stopped {
+		kw.finish()
+	}
 
 	stats.Records, stats.Written, stats.Dropped = tot.records, tot.written, tot.dropped
 	stats.Rejected, stats.Malformed, stats.NotString, stats.TooLong = tot.rejected, tot.malformed, tot.notString, tot.tooLong
 	stats.NoText, stats.Blank, stats.CRLF, stats.InvalidUTF8, stats.Passed = tot.noText, tot.blank, tot.crlf, tot.invalidUTF8, tot.passed
+	stats.Text, stats.NoWords = tot.text, tot.noWords
 	stats.Elapsed = time.Since(start)
 	switch {
 	case werr != nil:

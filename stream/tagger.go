@@ -25,3 +25,12 @@ type Explainer interface {
 	Scorer
 	AppendWhy(dst []byte) []byte
 }
+
+// WordCounter is a Scorer that can say how many words it found in the
+// last text it scored. The pipeline gives a text with none the unsure tag
+// and confidence 0 (see Options.MinConfidence) rather than whatever the
+// classifier makes of an empty input.
+type WordCounter interface {
+	Scorer
+	Words() int
+}

@@ -142,7 +142,7 @@ func TestEmbedJSONAndProgress(t *testing.T) {
 	}
 	for _, want := range []string{
 		"1 records skipped",
-		in + ":12: stream: malformed JSON",
+		in + ":12: malformed JSON",
 		"counting · ",
 		"pass 2/2 · 100% · ",
 		" · rate 0.",

@@ -55,6 +55,10 @@ type predictorScorer struct{ p *model.Predictor }
 
 func (s predictorScorer) Score(text []byte) []float32 { return s.p.Predict(text) }
 
+// Words tells the pipeline that a text without a token gets the unsure tag
+// (stream.WordCounter).
+func (s predictorScorer) Words() int { return s.p.TokenCount() }
+
 // maxShownProblems caps the record problems printed on stderr; --stats
 // has the counts of all of them.
 const maxShownProblems = 20
@@ -80,6 +84,10 @@ before its closing brace (an existing key of the same name gets the new
 value in place). A text line is written as tag, TAB, confidence, TAB, the
 line; or, with --emit jsonl, as {"text": line, "tag": ..., "confidence": ...}.
 A CR before the newline stays in the record and is not part of the text.
+Under --format auto a line starting with '{' is JSON; one that does not parse
+and does not begin like an object ('{' then a quoted key or '}'), such as
+"{sigh} my card was declined", is a text line. A text in which the model
+finds no word (empty, punctuation only) gets the --unsure-tag, confidence 0.
 A text key holding an array of byte values (0 to 255), as journalctl -o json
 writes a message that is not valid UTF-8, is tagged on those bytes; a record
 starting with the record separator 0x1E (journalctl -o json-seq) is JSON, and
@@ -89,10 +97,11 @@ Every record read gives one record written, unless --keep or --drop leaves
 it out. Records that cannot be tagged pass through unchanged and are counted
 (or go to the --rejects file): malformed JSON, a text key holding a number,
 boolean, array or object, a line longer than 64 MiB. Empty and blank lines
-and JSON records without the text key pass through unchanged. With --keep,
-untagged records are left out too. --scores, --top and --why go into JSON
-output only: with --format text they need --emit jsonl; with --format auto,
-text lines written as TSV go without them.
+and JSON records without the text key pass through unchanged; when none of
+the first 1,000 JSON records has the key, one warning names the keys they
+have. With --keep, untagged records are left out too. --scores, --top and
+--why go into JSON output only: with --format text they need --emit jsonl;
+with --format auto, text lines written as TSV go without them.
 
 No output file is lost either. Every input is opened, and no two of the
 inputs, -o, --rejects, the model and a redirected standard input or output
@@ -194,6 +203,7 @@ a same-size overwrite would switch the model in the middle of a block.
 				}
 			}
 
+			o.Warn = func(msg string) { fmt.Fprintf(a.stderr, "convtag: %s\n", msg) }
 			ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
 			defer stop()
 			go func() { <-ctx.Done(); stop() }() // a second signal kills at once
@@ -263,7 +273,7 @@ a same-size overwrite would switch the model in the middle of a block.
 	f.IntVar(&o.Top, "top", 0, `add the N best labels, best first, as an array under "top" (JSON output)`)
 	f.IntVar(&why, "why", 0, `add the N word windows that weighed most for the tag, as an array under "why" (JSON output)`)
 	f.Float64Var(&o.MinConfidence, "min-confidence", 0, "below this probability the record gets the --unsure-tag")
-	f.StringVar(&o.UnsureTag, "unsure-tag", "unsure", "tag for records below --min-confidence")
+	f.StringVar(&o.UnsureTag, "unsure-tag", "unsure", "tag for records below --min-confidence and texts without a word")
 	f.StringSliceVar(&keep, "keep", nil, "write only records with one of these tags (TAG[,TAG])")
 	f.StringSliceVar(&drop, "drop", nil, "leave out records with one of these tags (TAG[,TAG])")
 	f.StringVar(&emit, "emit", "tsv", "how text lines are written: tsv (tag TAB confidence TAB line) or jsonl")
@@ -584,6 +594,8 @@ func writeStats(w io.Writer, st stream.Stats) {
 	p("passed through", st.Passed)
 	p("  no text", st.NoText)
 	p("  blank", st.Blank)
+	p("text lines", st.Text)
+	p("no words", st.NoWords)
 	p("CRLF lines", st.CRLF)
 	p("invalid UTF-8", st.InvalidUTF8)
 	p("seconds", fmt.Sprintf("%.3f", st.Elapsed.Seconds()))

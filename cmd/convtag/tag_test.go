@@ -91,13 +91,13 @@ func chat(n int) string {
 func TestTagFlags(t *testing.T) {
 	dir := t.TempDir()
 	m := tagModel(t, dir, "m.safetensors", []string{"crossing", "weather"}, 1)
-	in := `{"id":1,"body":{"msg":"fog"},"text":"ferry late"}` + "\n" + "wind and rain\n" + "{broken\n"
+	in := `{"id":1,"body":{"msg":"fog"},"text":"ferry late"}` + "\n" + "wind and rain\n" + "{\"broken\n"
 	code, out, errs := runCmd(t, in, "tag", "-m", m, "--tag-key", "kind", "--confidence-key", "p", "-k", "body.msg", "--scores", "--top", "1", "--emit", "jsonl", "--stats")
 	if code != exitOK {
 		t.Fatalf("exit %d: %s", code, errs)
 	}
 	lines := strings.Split(strings.TrimSuffix(out, "\n"), "\n")
-	if len(lines) != 3 || lines[2] != "{broken" {
+	if len(lines) != 3 || lines[2] != `{"broken` {
 		t.Fatalf("out %q", out)
 	}
 	for _, l := range lines[:2] {
@@ -112,7 +112,7 @@ func TestTagFlags(t *testing.T) {
 	if !strings.HasPrefix(lines[1], `{"text":"wind and rain",`) {
 		t.Errorf("--emit jsonl: %q", lines[1])
 	}
-	if !strings.Contains(errs, "stdin:3: stream: malformed JSON") || !strings.Contains(errs, "records in") {
+	if !strings.Contains(errs, "stdin:3: malformed JSON") || !strings.Contains(errs, "records in") {
 		t.Errorf("stderr %q", errs)
 	}
 
@@ -141,7 +141,7 @@ func TestTagFlags(t *testing.T) {
 		{[]string{"-m", m, "--strict"}, exitRejected},
 		{[]string{"-m", m, filepath.Join(dir, "missing.txt")}, exitFailure},
 	} {
-		code, _, errs := runCmd(t, "{bad\n", append([]string{"tag"}, c.args...)...)
+		code, _, errs := runCmd(t, "{\"bad\n", append([]string{"tag"}, c.args...)...)
 		if code != c.code || !strings.HasPrefix(errs, "convtag: ") {
 			t.Errorf("%v: exit %d (stderr %q), want %d", c.args, code, errs, c.code)
 		}
@@ -154,7 +154,7 @@ func TestTagOutputFiles(t *testing.T) {
 	m := tagModel(t, dir, "m.safetensors", []string{"crossing", "weather"}, 1)
 	outPath, rejPath := filepath.Join(dir, "out.jsonl.gz"), filepath.Join(dir, "rej.jsonl")
 	_, plain, _ := runCmd(t, chat(100), "-m", m)
-	code, out, errs := runCmd(t, chat(100)+"{bad\n", "-m", m, "-o", outPath, "--rejects", rejPath)
+	code, out, errs := runCmd(t, chat(100)+"{\"bad\n", "-m", m, "-o", outPath, "--rejects", rejPath)
 	if code != exitOK || out != "" {
 		t.Fatalf("exit %d, stdout %q, stderr %q", code, out, errs)
 	}
@@ -162,7 +162,7 @@ func TestTagOutputFiles(t *testing.T) {
 	if err != nil || string(got) != plain {
 		t.Errorf("gzip -dc: %v, %d bytes, want %d", err, len(got), len(plain))
 	}
-	if rej, _ := os.ReadFile(rejPath); string(rej) != "{bad\n" {
+	if rej, _ := os.ReadFile(rejPath); string(rej) != "{\"bad\n" {
 		t.Errorf("rejects %q", rej)
 	}
 }

@@ -34,6 +34,9 @@ func (s *whyScorer) Score(text []byte) []float32 {
 	return probs
 }
 
+// Words is the last text's token count (stream.WordCounter).
+func (s *whyScorer) Words() int { return s.p.TokenCount() }
+
 // AppendWhy appends the last text's evidence as a JSON array, best first:
 // [{"ngram":"…","position":P,"width":W,"share":S}, …], position counting
 // tokens from 0 and share the window's signed part of the tagged label's
