@@ -26,12 +26,12 @@ func init() { commands = append(commands, newEmbedCmd) }
 
 // embedFlags are the embed command's settings.
 type embedFlags struct {
-	output, input  string
+	output, input     string
 	similar, textKeys []string
-	binary, quiet  bool
-	top            int
-	o              sgns.Options
-	sample         float64
+	binary, quiet     bool
+	top               int
+	o                 sgns.Options
+	sample            float64
 }
 
 func newEmbedCmd(a *app) *cobra.Command {

@@ -95,7 +95,7 @@ func TestTagReplacesOutputsAtTheEnd(t *testing.T) {
 	}
 	dir := t.TempDir()
 	m := tagModel(t, dir, "m.safetensors", []string{"crossing", "weather"}, 1)
-	in := chat(50) + "{bad\n"
+	in := chat(50) + "{\"bad\n"
 	good := filepath.Join(dir, "in.txt")
 	os.WriteFile(good, []byte(in), 0o644)
 	cut := filepath.Join(dir, "cut.gz")
@@ -131,7 +131,7 @@ func TestTagReplacesOutputsAtTheEnd(t *testing.T) {
 			gotOut, errOut := exec.Command("gzip", "-dc", out).Output() // Debian's gzip reads what -o wrote
 			gotRej, errRej := os.ReadFile(rej)
 			switch {
-			case c.replace && (errOut != nil || string(gotOut) != want || string(gotRej) != "{bad\n"):
+			case c.replace && (errOut != nil || string(gotOut) != want || string(gotRej) != "{\"bad\n"):
 				t.Errorf("%s (fresh %v): out %d bytes (%v), want %d; rejects %q", c.name, fresh, len(gotOut), errOut, len(want), gotRej)
 			case !c.replace && !fresh:
 				if b, _ := os.ReadFile(out); string(b) != "old out\n" || string(gotRej) != "old rejects\n" {
