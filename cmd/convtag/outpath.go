@@ -69,26 +69,34 @@ func checkOutput(cmd, path string, inputs ...string) error {
 				return usageErr("write to another file", "%s: -o %s is the input file %s; it would be replaced", cmd, path, in)
 			}
 		}
-	case !errors.Is(err, fs.ErrNotExist):
-		return withCode(exitFailure, fmt.Errorf("%s: -o: %w", cmd, err))
+	case !errors.Is(err, fs.ErrNotExist) && !errors.Is(err, syscall.ENOTDIR):
+		return withCode(exitFailure, fmt.Errorf("%s: -o %s: %w", cmd, path, pathErr(err)))
 	}
 	dir := filepath.Dir(path)
-	if dst, err := os.Stat(dir); err != nil {
-		return withCode(exitFailure, fmt.Errorf("%s: -o %s: %w", cmd, path, err))
+	if dst, err := os.Stat(dir); err != nil && !errors.Is(err, syscall.ENOTDIR) {
+		return withCode(exitFailure, fmt.Errorf("%s: -o %s: %s: %w", cmd, path, dir, pathErr(err)))
+	} else if err != nil {
+		return withCode(exitFailure, fmt.Errorf("%s: -o %s: a parent of %s is not a directory", cmd, path, dir))
 	} else if !dst.IsDir() {
 		return withCode(exitFailure, fmt.Errorf("%s: -o %s: %s is not a directory", cmd, path, dir))
 	}
 	f, err := createTemp(dir, "."+filepath.Base(path)+".", ".tmp")
 	if err != nil {
-		var pe *fs.PathError
-		if errors.As(err, &pe) {
-			err = pe.Err
-		}
-		return withCode(exitFailure, fmt.Errorf("%s: -o %s: cannot create a file in %s: %w", cmd, path, dir, err))
+		return withCode(exitFailure, fmt.Errorf("%s: -o %s: cannot create a file in %s: %w", cmd, path, dir, pathErr(err)))
 	}
 	f.Close()
 	os.Remove(f.Name())
 	return nil
+}
+
+// pathErr is err without the *fs.PathError's operation and path, which
+// the caller names better.
+func pathErr(err error) error {
+	var pe *fs.PathError
+	if errors.As(err, &pe) {
+		return pe.Err
+	}
+	return err
 }
 
 // createTemp creates a new file prefix+random+suffix in dir for writing,
