@@ -85,7 +85,7 @@ file. The model is written to a temporary file beside it and renamed into
 place, so a failed or interrupted run leaves the old file as it was.
 Signals: SIGINT and SIGTERM stop training, write nothing and exit with
 status 1; one that arrives while the model file is being written lets it
-finish.
+finish, and the run ends as usual.
 
 ` + exitHelp,
 		Example: `  convtag train -o ferry.safetensors testdata/demo/train.jsonl --dev testdata/demo/dev.jsonl
