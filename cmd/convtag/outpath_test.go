@@ -319,3 +319,62 @@ func TestTrainInterruptBeforeSave(t *testing.T) {
 		t.Errorf("directory holds %q", names)
 	}
 }
+
+// A signal sent once training is over, as the model is written (a large
+// embedding makes the save the long part): either the run gives up before
+// saving (exit 1, no file) or the save finishes (exit 0, a whole model);
+// never a temporary file, never a death by the signal.
+func TestTrainSignalDuringSave(t *testing.T) {
+	if testing.Short() {
+		t.Skip("writes a 50 MB model")
+	}
+	bin := binary(t)
+	for _, sig := range []syscall.Signal{syscall.SIGINT, syscall.SIGTERM} {
+		t.Run(sig.String(), func(t *testing.T) {
+			dir := t.TempDir()
+			out := filepath.Join(dir, "m.safetensors")
+			cmd := exec.Command(bin, "train", "-o", out, "--dim", "32", "--filters", "8", "--buckets", "400000",
+				"--epochs", "1", "--no-fold", "-j", "1", "../../testdata/demo/train.jsonl")
+			stderr := &syncBuffer{}
+			cmd.Stderr = stderr
+			if err := cmd.Start(); err != nil {
+				t.Fatal(err)
+			}
+			t.Cleanup(func() { cmd.Process.Kill(); cmd.Wait() })
+			// Said after training, just before the model is written.
+			waitFor(t, "baseline line", func() bool { return strings.Contains(stderr.String(), "convtag: baseline:") })
+			cmd.Process.Signal(sig)
+			cmd.Wait()
+			code := cmd.ProcessState.ExitCode()
+			t.Logf("exit %d", code)
+			switch code {
+			case exitFailure:
+				if !strings.HasSuffix(stderr.String(), "\nconvtag: interrupted\n") {
+					t.Errorf("exit 1 without \"interrupted\": %q", stderr.String())
+				}
+				if names := dirNames(t, dir); len(names) > 0 {
+					t.Errorf("an interrupted run left %q", names)
+				}
+			case exitOK:
+				m, err := model.Open(out)
+				if err != nil {
+					t.Fatal(err)
+				}
+				defer m.Close()
+				if err := m.Verify(); err != nil {
+					t.Errorf("the finished save: %v", err)
+				}
+				if names := dirNames(t, dir); len(names) != 1 {
+					t.Errorf("directory holds %q, want only the model", names)
+				}
+			default:
+				t.Errorf("exit %d (%v), want 1 or 0; stderr %q", code, cmd.ProcessState, stderr.String())
+			}
+			for _, name := range dirNames(t, dir) {
+				if strings.HasPrefix(name, ".") {
+					t.Errorf("temporary file %s left", name)
+				}
+			}
+		})
+	}
+}
