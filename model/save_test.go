@@ -79,4 +79,3 @@ func TestSaveFailedWriteLeavesNoTemp(t *testing.T) {
 		})
 	}
 }
-
