@@ -2,13 +2,16 @@ package model
 
 import (
 	"bufio"
+	"crypto/rand"
 	"crypto/sha256"
 	"encoding/binary"
 	"encoding/hex"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"hash"
 	"io"
+	"io/fs"
 	"maps"
 	"os"
 	"path/filepath"
@@ -132,32 +135,34 @@ func mustJSON(v any) string {
 // Save writes the model to path atomically: it encodes into a temporary
 // file in the same directory, syncs it and renames it over path, so a
 // reader never sees a partial file and a process that has the old file
-// mapped keeps its (unchanged) pages. The file gets mode 0644.
+// mapped keeps its (unchanged) pages. The file is created with mode 0666
+// less the umask, like any other output. On every failure, a panic
+// included, the temporary file is removed and path is left as it was.
 func (m *Model) Save(path string) (err error) {
 	dir, base := filepath.Split(path)
 	if dir == "" {
 		dir = "."
 	}
-	f, err := os.CreateTemp(dir, "."+base+".*.tmp")
+	f, err := createTemp(dir, "."+base+".", ".tmp")
 	if err != nil {
 		return fmt.Errorf("save model: %w", err)
 	}
 	tmp := f.Name()
+	done := false
 	defer func() {
-		if err != nil {
+		if !done {
 			f.Close()
 			os.Remove(tmp)
+		}
+		if err != nil {
 			err = fmt.Errorf("save model %s: %w", path, err)
 		}
 	}()
-	bw := bufio.NewWriterSize(f, 1<<20)
+	bw := bufio.NewWriterSize(saveWriter(f), 1<<20)
 	if err = m.Encode(bw); err != nil {
 		return err
 	}
 	if err = bw.Flush(); err != nil {
-		return err
-	}
-	if err = f.Chmod(0o644); err != nil {
 		return err
 	}
 	if err = f.Sync(); err != nil {
@@ -169,8 +174,29 @@ func (m *Model) Save(path string) (err error) {
 	if err = os.Rename(tmp, path); err != nil {
 		return err
 	}
+	done = true
 	syncDir(dir)
 	return nil
+}
+
+// saveWriter is where Save encodes to; tests replace it to fail a write
+// midway.
+var saveWriter = func(f *os.File) io.Writer { return f }
+
+// createTemp creates a new file prefix+random+suffix in dir for writing,
+// with mode 0666 less the umask (os.CreateTemp would give 0600 whatever
+// the umask, and a chmod afterwards would ignore it).
+func createTemp(dir, prefix, suffix string) (*os.File, error) {
+	for range 100 {
+		var r [8]byte
+		rand.Read(r[:])
+		name := filepath.Join(dir, prefix+hex.EncodeToString(r[:])+suffix)
+		f, err := os.OpenFile(name, os.O_CREATE|os.O_EXCL|os.O_WRONLY, 0o666)
+		if !errors.Is(err, fs.ErrExist) {
+			return f, err
+		}
+	}
+	return nil, fmt.Errorf("create a temporary file in %s: too many name collisions", dir)
 }
 
 // syncDir makes a rename durable where the system allows syncing a

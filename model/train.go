@@ -76,6 +76,10 @@ type TrainOptions struct {
 	// OnBatch, if set, is called after every mini-batch with the number of
 	// training examples done in this epoch and the total.
 	OnBatch func(done, total int)
+	// Stop, if not nil, ends training between two mini-batches once it is
+	// closed (for example a context's Done channel): Train then returns
+	// ErrStopped and leaves m's weights unspecified.
+	Stop <-chan struct{}
 }
 
 // EpochStats are one epoch's figures.
@@ -105,6 +109,7 @@ var (
 	ErrNoExamples = errors.New("model: no training examples")
 	ErrBadLabel   = errors.New("model: example label out of range")
 	ErrBadRow     = errors.New("model: example row out of range")
+	ErrStopped    = errors.New("model: training stopped")
 )
 
 // BalancedWeights returns per-label loss weights n / (C * n_c) for n
@@ -196,7 +201,10 @@ func Train(m *Model, train, dev []Example, opt TrainOptions) (*TrainResult, erro
 	var best *netParams
 	since := 0
 	for epoch := 1; epoch <= opt.Epochs; epoch++ {
-		es := t.epoch(epoch, train, order)
+		es, ok := t.epoch(epoch, train, order)
+		if !ok {
+			return nil, ErrStopped
+		}
 		if len(dev) > 0 {
 			es.DevAcc, es.DevMacroF1 = t.evaluate(dev)
 		}
@@ -291,13 +299,19 @@ func (t *trainer) parallel(n int, f func(k int)) {
 	t.wg.Wait()
 }
 
-// epoch runs one pass over train in a seeded random order.
-func (t *trainer) epoch(epoch int, train []Example, order []int) EpochStats {
+// epoch runs one pass over train in a seeded random order; ok is false
+// when opt.Stop ended it early.
+func (t *trainer) epoch(epoch int, train []Example, order []int) (_ EpochStats, ok bool) {
 	epochOrder(order, t.opt.Seed, epoch)
 	var loss, wsum float64
 	correct, tokens := 0, 0
 	start := time.Now()
 	for b := 0; b < len(order); b += t.opt.Batch {
+		select {
+		case <-t.opt.Stop:
+			return EpochStats{}, false
+		default:
+		}
 		batch := order[b:min(b+t.opt.Batch, len(order))]
 		var bw float64
 		for _, i := range batch {
@@ -332,7 +346,7 @@ func (t *trainer) epoch(epoch int, train []Example, order []int) EpochStats {
 			t.opt.OnBatch(b+len(batch), len(order))
 		}
 	}
-	return EpochStats{Epoch: epoch, Loss: loss / wsum, TrainAcc: float64(correct) / float64(len(train)), Tokens: tokens, Seconds: time.Since(start).Seconds()}
+	return EpochStats{Epoch: epoch, Loss: loss / wsum, TrainAcc: float64(correct) / float64(len(train)), Tokens: tokens, Seconds: time.Since(start).Seconds()}, true
 }
 
 // pack refreshes the kernel layout of the weights on all workers.

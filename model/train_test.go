@@ -3,6 +3,7 @@ package model
 import (
 	"bytes"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"math"
 	"math/rand/v2"
@@ -520,5 +521,47 @@ func TestBalancedWeights(t *testing.T) {
 		if math.Abs(got[i]-want[i]) > 1e-12 {
 			t.Errorf("weight %d = %g, want %g", i, got[i], want[i])
 		}
+	}
+}
+
+// TestTrainStop closes Stop after a given mini-batch: training ends before
+// the next one and Train returns ErrStopped; an open Stop changes nothing.
+func TestTrainStop(t *testing.T) {
+	cfg := Config{Dim: 8, Widths: []int{2, 3}, Filters: 6, Buckets: 7}
+	words := []string{"p", "q", "r", "s", "t", "u", "v", "w", "x", "y"}
+	for _, tc := range []struct {
+		name      string
+		stopAfter int // mini-batches before Stop closes; 0 never
+		want      error
+	}{
+		{"first batch", 1, ErrStopped},
+		{"second epoch", 25, ErrStopped},
+		{"never", 0, nil},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			m, err := New(cfg, TokenizerSettings{}, []string{"no", "yes"}, words, 4)
+			if err != nil {
+				t.Fatal(err)
+			}
+			stop := make(chan struct{})
+			batches := 0
+			opt := TrainOptions{Epochs: 3, Seed: 8, Jobs: 2, Batch: 7, Stop: stop}
+			opt.OnBatch = func(done, total int) {
+				batches++
+				if batches == tc.stopAfter {
+					close(stop)
+				}
+			}
+			res, err := Train(m, toyTask(m, 130, 1), toyTask(m, 40, 2), opt)
+			if !errors.Is(err, tc.want) {
+				t.Fatalf("Train: %v, want %v", err, tc.want)
+			}
+			if tc.want != nil && batches != tc.stopAfter {
+				t.Errorf("%d mini-batches ran, want %d (stop after the closing one)", batches, tc.stopAfter)
+			}
+			if tc.want == nil && (res == nil || res.EpochsRun != 3) {
+				t.Errorf("an open Stop ended training: %+v", res)
+			}
+		})
 	}
 }

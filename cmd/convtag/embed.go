@@ -6,11 +6,9 @@ import (
 	"fmt"
 	"io"
 	"os"
-	"os/signal"
 	"path/filepath"
 	"runtime"
 	"strings"
-	"syscall"
 	"time"
 
 	"github.com/mattn/go-isatty"
@@ -63,6 +61,11 @@ and sub-sampling of frequent words: --vector-size 100, --context 5,
 
 With -j 1 a --seed gives identical vectors; with more jobs the vectors are
 updated without locks and vary from run to run.
+
+The -o file is checked before any text is read (not a directory, not an
+input file, its directory writable) and written through a temporary file
+renamed into place. Signals: SIGINT and SIGTERM stop, write nothing and
+exit with status 1.
 
 ` + exitHelp,
 		Example: `  convtag embed -o chat.wordvec.txt chat-2026-*.log.gz
@@ -139,6 +142,13 @@ func runEmbed(a *app, f *embedFlags, args []string) error {
 	if err := f.check(args); err != nil {
 		return err
 	}
+	if f.output != "-" {
+		if err := checkOutput("embed", f.output, args...); err != nil {
+			return err
+		}
+	}
+	ctx, stop := notifyInterrupt()
+	defer stop()
 	if len(args) == 0 {
 		args = []string{"-"}
 	}
@@ -147,7 +157,10 @@ func runEmbed(a *app, f *embedFlags, args []string) error {
 		if name != "-" {
 			continue
 		}
-		tmp, err := spool(a.stdin)
+		tmp, err := spool(ctx, a.stdin)
+		if errors.Is(err, errInterrupted) {
+			return withCode(exitFailure, err)
+		}
 		if err != nil {
 			return withCode(exitFailure, fmt.Errorf("embed: copy standard input: %w", err))
 		}
@@ -169,15 +182,13 @@ func runEmbed(a *app, f *embedFlags, args []string) error {
 	}
 	corpus := &textCorpus{files: args, opt: stream.TextOptions{TextKeys: f.textKeys, Report: -1}}
 
-	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
-	defer stop()
 	res, err := sgns.Train(ctx, corpus, f.o)
 	if corpus.stats != nil {
 		reportTexts(a, f, args, corpus)
 	}
 	switch {
 	case errors.Is(err, context.Canceled):
-		return withCode(exitFailure, errors.New("embed: interrupted"))
+		return withCode(exitFailure, errInterrupted)
 	case errors.Is(err, sgns.ErrNoVocabulary):
 		return withCode(exitFailure, fmt.Errorf("embed: %s: %w", strings.Join(args, ", "), err))
 	case err != nil:
@@ -190,6 +201,9 @@ func runEmbed(a *app, f *embedFlags, args []string) error {
 	format := vectors.Text
 	if f.binary {
 		format = vectors.Binary
+	}
+	if ctx.Err() != nil { // once writing has begun, it is finished
+		return withCode(exitFailure, errInterrupted)
 	}
 	if err := writeVectors(a, f.output, res.Vectors, format); err != nil {
 		return withCode(exitFailure, fmt.Errorf("embed: %w", err))
@@ -222,13 +236,19 @@ func reportTexts(a *app, f *embedFlags, args []string, c *textCorpus) {
 	}
 }
 
-// spool copies r to a temporary file and returns its name.
-func spool(r io.Reader) (string, error) {
+// spool copies r to a temporary file and returns its name. When ctx ends
+// first it removes the file and returns errInterrupted (the copy goes on
+// into the unlinked file until the process ends).
+func spool(ctx context.Context, r io.Reader) (string, error) {
 	tmp, err := os.CreateTemp("", "convtag-embed-*")
 	if err != nil {
 		return "", err
 	}
-	_, err = io.Copy(tmp, r)
+	_, err = untilDone(ctx, func() (int64, error) { return io.Copy(tmp, r) })
+	if errors.Is(err, errInterrupted) {
+		os.Remove(tmp.Name())
+		return "", errInterrupted
+	}
 	if cerr := tmp.Close(); err == nil {
 		err = cerr
 	}
@@ -241,15 +261,20 @@ func spool(r io.Reader) (string, error) {
 
 // writeVectors writes s to path ("-" is standard output) through a
 // temporary file beside it, renamed into place once complete.
-func writeVectors(a *app, path string, s *vectors.Set, format vectors.Format) error {
+func writeVectors(a *app, path string, s *vectors.Set, format vectors.Format) (err error) {
 	if path == "-" {
 		return s.Write(a.stdout, format)
 	}
-	tmp, err := os.CreateTemp(filepath.Dir(path), "."+filepath.Base(path)+".tmp*")
+	tmp, err := createTemp(filepath.Dir(path), "."+filepath.Base(path)+".", ".tmp")
 	if err != nil {
 		return err
 	}
-	defer os.Remove(tmp.Name())
+	defer func() {
+		if err != nil {
+			tmp.Close()
+			os.Remove(tmp.Name())
+		}
+	}()
 	err = s.Write(tmp, format)
 	if err == nil {
 		err = tmp.Sync()

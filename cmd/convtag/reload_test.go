@@ -28,17 +28,6 @@ func (p *proc) waitStderr(t *testing.T, want string, n int) {
 }
 
 // copyFile copies src to a new file dst.
-func copyFile(t *testing.T, src, dst string) {
-	t.Helper()
-	b, err := os.ReadFile(src)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if err := os.WriteFile(dst, b, 0o644); err != nil {
-		t.Fatal(err)
-	}
-}
-
 // Truncating the mapped model in place (what `cp new current` or a
 // truncating editor does first) under a running filter: the faulting worker
 // ends the run with one line on stderr and exit 1, no goroutine dump, and

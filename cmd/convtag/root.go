@@ -28,7 +28,7 @@ const (
 
 const exitHelp = `Exit status:
   0  success
-  1  runtime failure (unreadable input, write error, interrupted)
+  1  runtime failure (unreadable input, write error, interrupted by SIGINT or SIGTERM)
   2  usage error or unusable model file
   3  records rejected under --strict`
 

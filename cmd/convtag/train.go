@@ -1,6 +1,7 @@
 package main
 
 import (
+	"context"
 	"crypto/sha256"
 	"encoding/hex"
 	"encoding/json"
@@ -8,6 +9,7 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"path/filepath"
 	"runtime"
 	"slices"
 	"strconv"
@@ -76,6 +78,14 @@ Beside the network, a naive-Bayes classifier on lowercase unigrams and
 bigrams is trained on the same records, and both dev accuracies are printed
 at the end: if the baseline wins, the network is not earning its keep.
 The same data, flags, --seed and --jobs give a byte-identical model file.
+
+The -o file is checked before any record is read: it must not be a
+directory or one of the input files, and its directory must take a new
+file. The model is written to a temporary file beside it and renamed into
+place, so a failed or interrupted run leaves the old file as it was.
+Signals: SIGINT and SIGTERM stop training, write nothing and exit with
+status 1; one that arrives while the model file is being written lets it
+finish, and the run ends as usual.
 
 ` + exitHelp,
 		Example: `  convtag train -o ferry.safetensors testdata/demo/train.jsonl --dev testdata/demo/dev.jsonl
@@ -189,13 +199,18 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 	if err := f.check(args); err != nil {
 		return err
 	}
+	if err := checkOutput("train", f.output, append([]string{f.dev, f.vectors}, args...)...); err != nil {
+		return err
+	}
+	ctx, stop := notifyInterrupt()
+	defer stop()
 	say := func(format string, v ...any) {
 		if !f.quiet {
 			fmt.Fprintf(a.stderr, "convtag: "+format+"\n", v...)
 		}
 	}
 	ropt := stream.LabelledOptions{Format: f.format, TextKeys: f.textKeys, LabelKey: f.labelKey, Stdin: a.stdin}
-	set, err := readLabelled(a, args, ropt, "training")
+	set, err := untilDone(ctx, func() (*stream.LabelledSet, error) { return readLabelled(a, args, ropt, "training") })
 	if err != nil {
 		return err
 	}
@@ -218,7 +233,7 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 	var devFiles []string
 	if f.dev != "" {
 		devFiles = []string{f.dev}
-		dset, err := readLabelled(a, devFiles, ropt, "dev")
+		dset, err := untilDone(ctx, func() (*stream.LabelledSet, error) { return readLabelled(a, devFiles, ropt, "dev") })
 		if err != nil {
 			return err
 		}
@@ -276,8 +291,11 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 		if err != nil {
 			return withCode(exitFailure, fmt.Errorf("train: %w", err))
 		}
-		vecs, err = vectors.Read(vf)
+		vecs, err = untilDone(ctx, func() (*vectors.Set, error) { return vectors.Read(vf) })
 		vf.Close()
+		if errors.Is(err, errInterrupted) {
+			return err
+		}
 		if err != nil {
 			return withCode(exitFailure, fmt.Errorf("train: %s: %w", f.vectors, err))
 		}
@@ -337,7 +355,7 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 		f.jobs = runtime.GOMAXPROCS(0)
 	}
 	opt := model.TrainOptions{Epochs: f.epochs, Patience: f.patience, Batch: f.batch, Seed: f.seed,
-		Jobs: f.jobs, Opt: f.optimizer, LR: f.lr, Frozen: frozen}
+		Jobs: f.jobs, Opt: f.optimizer, LR: f.lr, Frozen: frozen, Stop: ctx.Done()}
 	if f.patience == 0 {
 		opt.Patience = -1
 	}
@@ -367,6 +385,9 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 	res, err := model.Train(m, trEx, devEx, opt)
 	if bar != nil {
 		bar.Finish()
+	}
+	if errors.Is(err, model.ErrStopped) {
+		return withCode(exitFailure, errInterrupted)
 	}
 	if err != nil {
 		return withCode(exitFailure, fmt.Errorf("train: %w", err))
@@ -399,7 +420,7 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 
 	sum := trainSummary{
 		DataSHA256: dataHash(train, dev),
-		Files:      args, DevFiles: devFiles,
+		Files:      baseNames(args), DevFiles: baseNames(devFiles),
 		Records:    map[string]int{"train": len(train), "dev": len(dev), "skipped": set.Skipped, "multi_label": set.Multi},
 		Counts:     map[string]map[string]int{"train": countMap(train), "dev": countMap(dev)},
 		Vocabulary: len(words), Coverage: coverage,
@@ -422,6 +443,12 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 	if !f.noFold {
 		model.FoldModel(m, f.foldHalf)
 	}
+	beforeSave(ctx)
+	// The last point to give up: once saving has begun, the signals stay
+	// caught and the file is finished.
+	if ctx.Err() != nil {
+		return withCode(exitFailure, errInterrupted)
+	}
 	if err := m.Save(f.output); err != nil {
 		return withCode(exitFailure, fmt.Errorf("train: %w", err))
 	}
@@ -435,6 +462,26 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 	}
 	fmt.Fprintf(w, "wrote %s (%d labels, %d words, %.1fs)\n", f.output, len(labels), len(words), res.Seconds)
 	return nil
+}
+
+// beforeSave is called just before the model is written; tests use it to
+// send a signal at that point.
+var beforeSave = func(context.Context) {}
+
+// baseNames gives each file's base name, so that the model file does not
+// record where its data lived (its data_sha256 identifies the data).
+func baseNames(files []string) []string {
+	if files == nil {
+		return nil
+	}
+	out := make([]string, len(files))
+	for i, name := range files {
+		out[i] = name
+		if name != "-" {
+			out[i] = filepath.Base(name)
+		}
+	}
+	return out
 }
 
 // readLabelled reads records and reports skipped ones on stderr: every
