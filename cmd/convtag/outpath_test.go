@@ -65,7 +65,7 @@ func TestTrainOutputCheckedFirst(t *testing.T) {
 	if err := os.Mkdir(readOnly, 0o555); err != nil {
 		t.Fatal(err)
 	}
-	quiet := []string{"--dim", "16", "--filters", "8", "--buckets", "50", "--epochs", "2"}
+	quiet := []string{"--vector-size", "16", "--filters", "8", "--unseen-rows", "50", "--epochs", "2"}
 	for _, tc := range []struct {
 		name  string
 		out   string
@@ -136,11 +136,11 @@ func TestEmbedOutputCheckedFirst(t *testing.T) {
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			before := dirNames(t, dir)
-			code, _, stderr := runCmd(t, "", "embed", "-o", tc.out, "--dim", "8", "--epochs", "1", in)
+			code, _, stderr := runCmd(t, "", "embed", "-o", tc.out, "--vector-size", "8", "--passes", "1", in)
 			if code != tc.code || !strings.Contains(stderr, tc.msg) || !strings.HasPrefix(stderr, "convtag: embed: -o ") {
 				t.Errorf("exit %d, stderr %q; want exit %d, one line about -o mentioning %q", code, stderr, tc.code, tc.msg)
 			}
-			if strings.Contains(stderr, "counting words") {
+			if strings.Contains(stderr, "counting · ") {
 				t.Errorf("read the input before refusing the output: %q", stderr)
 			}
 			if got := dirNames(t, dir); !slices.Equal(got, before) {
@@ -202,7 +202,7 @@ func TestEmbedModeFollowsUmask(t *testing.T) {
 	} {
 		out := filepath.Join(dir, "v.txt")
 		old := syscall.Umask(tc.umask)
-		code, _, stderr := runCmd(t, "", "embed", "-o", out, "--dim", "8", "--epochs", "1", "-j", "1", "-q", in)
+		code, _, stderr := runCmd(t, "", "embed", "-o", out, "--vector-size", "8", "--passes", "1", "-j", "1", "-q", in)
 		syscall.Umask(old)
 		if code != exitOK {
 			t.Fatalf("exit %d: %s", code, stderr)
@@ -240,7 +240,7 @@ func TestInterruptTrainEmbed(t *testing.T) {
 		ready string // stderr holds this once the long part runs
 	}{
 		{"train", func(dir string) []string {
-			return []string{"train", "-o", filepath.Join(dir, "m.safetensors"), "--dim", "16", "--filters", "8",
+			return []string{"train", "-o", filepath.Join(dir, "m.safetensors"), "--vector-size", "16", "--filters", "8",
 				"--epochs", "100000", "--patience", "0", "-j", "1", "../../testdata/demo/train.jsonl"}
 		}, false, "epoch 1/"},
 		{"embed", func(dir string) []string {
@@ -248,10 +248,10 @@ func TestInterruptTrainEmbed(t *testing.T) {
 			if err := os.WriteFile(in, []byte(text), 0o644); err != nil {
 				t.Fatal(err)
 			}
-			return []string{"embed", "-o", filepath.Join(dir, "v.txt"), "--dim", "8", "--epochs", "10000", "-j", "1", in}
-		}, false, "counting words"},
+			return []string{"embed", "-o", filepath.Join(dir, "v.txt"), "--vector-size", "8", "--passes", "10000", "-j", "1", in}
+		}, false, "counting · "},
 		{"embed reading standard input", func(dir string) []string {
-			return []string{"embed", "-o", filepath.Join(dir, "v.txt"), "--dim", "8"}
+			return []string{"embed", "-o", filepath.Join(dir, "v.txt"), "--vector-size", "8"}
 		}, true, ""},
 	} {
 		for _, sig := range []syscall.Signal{syscall.SIGINT, syscall.SIGTERM} {
@@ -333,7 +333,7 @@ func TestTrainSignalDuringSave(t *testing.T) {
 		t.Run(sig.String(), func(t *testing.T) {
 			dir := t.TempDir()
 			out := filepath.Join(dir, "m.safetensors")
-			cmd := exec.Command(bin, "train", "-o", out, "--dim", "32", "--filters", "8", "--buckets", "400000",
+			cmd := exec.Command(bin, "train", "-o", out, "--vector-size", "32", "--filters", "8", "--unseen-rows", "400000",
 				"--epochs", "1", "--no-fold", "-j", "1", "../../testdata/demo/train.jsonl")
 			stderr := &syncBuffer{}
 			cmd.Stderr = stderr
