@@ -146,15 +146,21 @@ func (ts *Tokens) addString(tok string) {
 	ts.ends = append(ts.ends, int32(len(ts.buf)))
 }
 
-// tokChunk is about how many input bytes the tokenizer takes at a time:
-// a whole chat line or ticket at once, a huge record in pieces.
-const tokChunk = 4096
+// The tokenizer takes about tokFirstChunk input bytes first, a whole chat
+// line, then twice as many each time up to tokChunk: a huge record in
+// pieces, and little work past the limit even where a few bytes give many
+// tokens (U+FDFA).
+const (
+	tokFirstChunk = 256
+	tokChunk      = 4096
+)
 
-func (t *Tokenizer) chunkSize() int {
+// chunkSizes are the first and the largest chunk.
+func (t *Tokenizer) chunkSizes() (int, int) {
 	if t.chunk > 0 {
-		return t.chunk
+		return t.chunk, t.chunk
 	}
-	return tokChunk
+	return tokFirstChunk, tokChunk
 }
 
 // Tokenize replaces the contents of ts by the tokens of text, at most
@@ -162,10 +168,11 @@ func (t *Tokenizer) chunkSize() int {
 // not modified or kept. After warm-up (storage grown to the longest piece
 // seen) it allocates nothing.
 //
-// The text is taken in chunks of about tokChunk bytes, each normalised at
-// a normalisation boundary, and the normalised text is cut into tokens up
-// to its last stop character (see isStop), where neither a placeholder nor
-// a word can continue; the rest waits for the next chunk. Once the limit
+// The text is taken in chunks (tokFirstChunk bytes growing to tokChunk),
+// each normalised up to its last normalisation boundary, and the
+// normalised text is cut into tokens up to its last stop character (see
+// isStop), where neither a placeholder nor a word can continue; the rest
+// waits for the next chunk. Once the limit
 // is reached the rest of the text is not looked at, so a record costs a
 // scan for non-ASCII bytes plus work and memory for the part that gives
 // its tokens. A stretch without a stop character (one very long word, a
@@ -182,12 +189,14 @@ func (t *Tokenizer) Tokenize(ts *Tokens, text []byte) {
 // tokenizeASCII is the fast path for ASCII text.
 func (t *Tokenizer) tokenizeASCII(ts *Tokens, text []byte) {
 	ts.Reset()
-	limit, chunk := t.s.Limit(), t.chunkSize()
+	limit := t.s.Limit()
+	chunk, most := t.chunkSizes()
 	for len(text) > 0 && ts.Len() < limit {
 		n := len(text)
 		if n > chunk {
 			n = stopCut(text, chunk)
 		}
+		chunk = min(2*chunk, most)
 		ts.a = appendLowerASCII(ts.a[:0], text[:n])
 		t.tokenizeNormal(ts, ts.a, cutASCII)
 		text = text[n:]
@@ -200,12 +209,14 @@ func (t *Tokenizer) tokenizeASCII(ts *Tokens, text []byte) {
 func (t *Tokenizer) tokenizeGeneral(ts *Tokens, text []byte, mode int) {
 	ts.Reset()
 	ts.a, ts.c, ts.w = ts.a[:0], ts.c[:0], ts.w[:0]
-	limit, chunk := t.s.Limit(), t.chunkSize()
+	limit := t.s.Limit()
+	chunk, most := t.chunkSizes()
 	for ts.Len() < limit {
 		n := len(text)
 		if n > chunk {
 			n = runeCut(text, chunk)
 		}
+		chunk = min(2*chunk, most)
 		end := n == len(text)
 		carried := len(ts.w)
 		ts.normalizeChunk(text[:n], end)
@@ -263,20 +274,39 @@ func (ts *Tokens) normalizeChunk(chunk []byte, end bool) {
 }
 
 // lastBoundary is the start of the last character of valid UTF-8 s before
-// which NFKC has a boundary (the character is a starter that never
-// combines with what precedes it), or 0: s[:i] and s[i:] normalise on
-// their own. s[:from] is known to hold no boundary after its start, so
-// the search stops there (a long run of marks is not searched again for
-// every chunk).
+// which NFKC has a boundary, or 0: s[:i] and s[i:] normalise on their
+// own. s[:from] is known to hold no boundary after its start, so the
+// search stops there (a long run of marks is not searched again for every
+// chunk).
 func lastBoundary(s []byte, from int) int {
 	for i := len(s); i > from; {
 		_, n := utf8.DecodeLastRune(s[:i])
 		i -= n
-		if i > 0 && (s[i] < utf8.RuneSelf || norm.NFKC.Properties(s[i:]).BoundaryBefore()) {
+		if i > 0 && boundaryBefore(s[i:]) {
 			return i
 		}
 	}
 	return 0
+}
+
+// boundaryBefore reports whether NFKC has a boundary before the first
+// character of s: it is a starter that never combines with what precedes
+// it, and so is the first character of its decomposition. x/text reports
+// a boundary before the Hangul compatibility jamo U+3133..U+3163 and
+// U+FFA3..U+FFDC that decompose to vowel or trailing jamo, yet composes
+// them with a preceding syllable ("\uAC00\u3135" is U+AC05), which moves
+// where it inserts U+034F into a long run of marks after them (UAX #15
+// stream-safe format).
+func boundaryBefore(s []byte) bool {
+	if s[0] < utf8.RuneSelf {
+		return true
+	}
+	p := norm.NFKC.Properties(s)
+	if !p.BoundaryBefore() {
+		return false
+	}
+	d := p.Decomposition()
+	return d == nil || norm.NFKC.Properties(d).BoundaryBefore()
 }
 
 // runeCut is where a chunk of about n bytes of text (n < len(text)) may
@@ -317,8 +347,11 @@ func runeCut(text []byte, n int) int {
 func isStop(s []byte, q int) bool {
 	switch s[q] {
 	case ' ':
+		// uniseg joins a space to a space before it also across Extend,
+		// Format and ZWJ characters (" \u200d " is one segment), so a
+		// space after one of those is no stop either.
 		r, _ := utf8.DecodeLastRune(s[:q])
-		return !unicode.Is(wsegSpace, r)
+		return !unicode.Is(wsegSpace, r) && !wordExtend(r)
 	case '\n':
 		return s[q-1] != '\r'
 	case '\t', '\v', '\f', '\r', '<', '>', '\\', '^', '`', '{', '|', '}':
@@ -335,6 +368,15 @@ var wsegSpace = &unicode.RangeTable{R16: []unicode.Range16{
 	{0x0020, 0x0020, 1}, {0x1680, 0x1680, 1}, {0x2000, 0x2006, 1}, {0x2008, 0x200A, 1},
 	{0x205F, 0x205F, 1}, {0x3000, 0x3000, 1},
 }}
+
+// wordExtend reports whether r may be Extend, Format or ZWJ in UAX #29
+// (WordBreakProperty.txt: Grapheme_Extend, spacing marks, emoji
+// modifiers; Format is Cf but for a few): any mark, any Cf, U+1F3FB..U+1F3FF
+// and the halfwidth sound marks U+FF9E, U+FF9F. It may say yes for a
+// character that is none of these; a stop is then missed, never made.
+func wordExtend(r rune) bool {
+	return unicode.In(r, unicode.M, unicode.Cf) || r >= 0x1F3FB && r <= 0x1F3FF || r == 0xFF9E || r == 0xFF9F
+}
 
 // lastStop is the last q at which isStop(s, q), or 0; s[:from] is known
 // to hold none after its start.

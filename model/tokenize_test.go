@@ -6,6 +6,7 @@ import (
 	"math/rand/v2"
 	"os"
 	"reflect"
+	"runtime"
 	"slices"
 	"strconv"
 	"strings"
@@ -785,5 +786,42 @@ func TestTokenizeIncrementalDifferential(t *testing.T) {
 				}
 			}
 		}
+	}
+}
+
+// TestTokenizeBoundedMemory: with max_tokens 60, an 18 MB record costs the
+// tokenizer less than 1 MiB of allocations, storage growth included
+// (runtime.MemStats.TotalAlloc, bytes, not time): it normalises the text
+// only as far as its first 60 tokens need. The whole-text path allocated
+// over 1 GB for the U+FDFA text (NFKC makes each character 18) and a copy
+// of the text for the others. The first 60 tokens are those of the
+// whole-text path on the text's first 64 KiB.
+func TestTokenizeBoundedMemory(t *testing.T) {
+	const size = 18 << 20
+	for _, c := range []struct{ name, unit string }{
+		{"U+FDFA", "\uFDFA"},
+		{"ascii", "Is the 10:30 ferry to Osk late? see https://ferry.example/live "},
+		{"mixed", "Fähre nach Øsk 🙏 ＦＵＬＬ ﬁve 👨\u200d👩\u200d👧 "},
+		{"ideographs with stops", "東京へ行くフェリー、"},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			text := []byte(strings.Repeat(c.unit, size/len(c.unit)))
+			set := TokenizerSettings{MaxTokens: 60}
+			tk := NewTokenizer(set)
+			var ts Tokens
+			var before, after runtime.MemStats
+			runtime.ReadMemStats(&before)
+			tk.Tokenize(&ts, text)
+			runtime.ReadMemStats(&after)
+			got := after.TotalAlloc - before.TotalAlloc
+			if got >= 1<<20 {
+				t.Errorf("%d MiB text: %d bytes allocated, want under 1 MiB", len(text)>>20, got)
+			}
+			t.Logf("%d MiB text: %d bytes allocated", len(text)>>20, got)
+			want := tokRefTokenize(set, text[:runeCut(text, 64<<10)])
+			if got := tokStrings(&ts); !reflect.DeepEqual(got, want) {
+				t.Errorf("tokens %+q, want %+q", got, want)
+			}
+		})
 	}
 }
