@@ -630,25 +630,40 @@ func TestTokenizeASCIIDifferential(t *testing.T) {
 	}
 }
 
-// TestTokenizeAllocs: no allocation per call after warm-up on ASCII text.
+// TestTokenizeAllocs: no allocation per call after warm-up, on ASCII,
+// mixed and non-ASCII lines and on texts of several chunks (past the limit
+// and not). Measured: 0 allocations per call for every set, before and
+// after tokenizing in chunks. testing.AllocsPerRun counts allocations,
+// which do not vary from run to run, so the bound is the measured value
+// itself: any allocation per call is a regression, there is no noise to
+// leave room for.
 func TestTokenizeAllocs(t *testing.T) {
-	tk := NewTokenizer(TokenizerSettings{})
-	var ts Tokens
-	for _, lines := range [][]string{tokBenchASCII, tokBenchUnicode} {
-		for _, l := range lines {
-			tk.Tokenize(&ts, []byte(l))
+	long := strings.Repeat(strings.Join(tokBenchUnicode, " "), 30)
+	for _, c := range []struct {
+		name  string
+		set   TokenizerSettings
+		lines []string
+	}{
+		{"ascii", TokenizerSettings{}, tokBenchASCII},
+		{"mixed", TokenizerSettings{}, tokBenchMixed},
+		{"unicode", TokenizerSettings{}, tokBenchUnicode},
+		{"long unicode, limit reached", TokenizerSettings{}, []string{long}},
+		{"long unicode, no limit", TokenizerSettings{MaxTokens: MaxTokensLimit}, []string{long}},
+		{"U+FDFA", TokenizerSettings{MaxTokens: 60}, []string{strings.Repeat("\uFDFA", 20000)}},
+	} {
+		tk := NewTokenizer(c.set)
+		var ts Tokens
+		texts := make([][]byte, len(c.lines))
+		for i, l := range c.lines {
+			texts[i] = []byte(l)
+			tk.Tokenize(&ts, texts[i])
 		}
-		i := 0
-		allocs := testing.AllocsPerRun(1000, func() {
-			tk.Tokenize(&ts, []byte(lines[i%len(lines)]))
-			i++
-		})
-		if isASCII([]byte(lines[0])) {
-			if allocs != 0 {
-				t.Errorf("ASCII lines: %.2f allocations per call, want 0", allocs)
+		// Line by line: AllocsPerRun truncates the mean to an integer, so
+		// over all lines at once one line's allocation could vanish.
+		for _, text := range texts {
+			if allocs := testing.AllocsPerRun(50, func() { tk.Tokenize(&ts, text) }); allocs != 0 {
+				t.Errorf("%s: %+.40q: %.0f allocations per call, want 0", c.name, text, allocs)
 			}
-		} else {
-			t.Logf("non-ASCII lines: %.2f allocations per call", allocs)
 		}
 	}
 }
