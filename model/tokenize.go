@@ -89,7 +89,7 @@ const (
 // The zero Tokenizer has the zero (default) settings.
 type Tokenizer struct {
 	s     TokenizerSettings
-	chunk int // bytes taken at a time; 0 means tokChunk (tests set it small)
+	chunk int // bytes taken at a time; 0: tokFirstChunk growing to tokChunk (tests set it small)
 }
 
 // caseFold is Unicode full case folding; x/text documents it as stateless
@@ -172,10 +172,9 @@ func (t *Tokenizer) chunkSizes() (int, int) {
 // each normalised up to its last normalisation boundary, and the
 // normalised text is cut into tokens up to its last stop character (see
 // isStop), where neither a placeholder nor a word can continue; the rest
-// waits for the next chunk. Once the limit
-// is reached the rest of the text is not looked at, so a record costs a
-// scan for non-ASCII bytes plus work and memory for the part that gives
-// its tokens. A stretch without a stop character (one very long word, a
+// waits for the next chunk. Once the limit is reached the rest of the text
+// is not looked at, so a record costs a scan for non-ASCII bytes plus work
+// and memory for the part that gives its tokens. A stretch without a stop character (one very long word, a
 // run of ideographs without spaces or punctuation, a run of combining
 // marks without a starter) is normalised whole before it is cut.
 func (t *Tokenizer) Tokenize(ts *Tokens, text []byte) {
