@@ -254,7 +254,8 @@ func (ts *Tokens) normalizeChunk(chunk []byte, end bool) {
 		s = ts.b
 	}
 	carried = len(ts.c)
-	ts.c, _ = appendFold(ts.c, s)
+	var folded bool
+	ts.c, folded = appendFold(ts.c, s)
 	ts.a = ts.a[:copy(ts.a, ts.a[cut:])]
 
 	cut = len(ts.c)
@@ -262,9 +263,11 @@ func (ts *Tokens) normalizeChunk(chunk []byte, end bool) {
 		cut = lastBoundary(ts.c, carried)
 	}
 	s = ts.c[:cut]
-	// NFKC is idempotent, so text that folding left unchanged passes
-	// QuickSpan whole.
-	if n := norm.NFKC.QuickSpan(s); n < len(s) {
+	// Text that folding left unchanged, with nothing carried before it,
+	// is the first NFKC's output and needs no second.
+	if !folded && carried == 0 {
+		ts.w = append(ts.w, s...)
+	} else if n := norm.NFKC.QuickSpan(s); n < len(s) {
 		ts.w = ts.appendNFKC(ts.w, s, n)
 	} else {
 		ts.w = append(ts.w, s...)
