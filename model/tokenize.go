@@ -88,7 +88,8 @@ const (
 //
 // The zero Tokenizer has the zero (default) settings.
 type Tokenizer struct {
-	s TokenizerSettings
+	s     TokenizerSettings
+	chunk int // bytes taken at a time; 0: tokFirstChunk growing to tokChunk (tests set it small)
 }
 
 // caseFold is Unicode full case folding; x/text documents it as stateless
@@ -111,10 +112,13 @@ type Tokens struct {
 	buf  []byte
 	ends []int32
 
-	// scratch for the normalised text and the placeholder spans
-	a, b, c []byte
-	spans   []span
-	iter    *norm.Iter
+	// Scratch of the incremental normalisation (see Tokenize): cleaned
+	// text not yet normalised (a), the first NFKC (b), folded text not yet
+	// normalised again (c), normalised text not yet cut into tokens (w),
+	// the placeholder spans of a piece.
+	a, b, c, w []byte
+	spans      []span
+	iter       *norm.Iter
 }
 
 // Len is the number of tokens.
@@ -142,11 +146,37 @@ func (ts *Tokens) addString(tok string) {
 	ts.ends = append(ts.ends, int32(len(ts.buf)))
 }
 
+// The tokenizer takes about tokFirstChunk input bytes first, a whole chat
+// line, then twice as many each time up to tokChunk: a huge record in
+// pieces, and little work past the limit even where a few bytes give many
+// tokens (U+FDFA).
+const (
+	tokFirstChunk = 256
+	tokChunk      = 4096
+)
+
+// chunkSizes are the first and the largest chunk.
+func (t *Tokenizer) chunkSizes() (int, int) {
+	if t.chunk > 0 {
+		return t.chunk, t.chunk
+	}
+	return tokFirstChunk, tokChunk
+}
+
 // Tokenize replaces the contents of ts by the tokens of text, at most
 // Settings().Limit() of them. Invalid UTF-8 is replaced by U+FFFD. text is
-// not modified or kept. After warm-up (storage grown to the longest text
-// seen) it allocates nothing. Time is linear in len(text); the whole text
-// is normalised even when the limit is reached early.
+// not modified or kept. After warm-up (storage grown to the longest piece
+// seen) it allocates nothing.
+//
+// The text is taken in chunks (tokFirstChunk bytes growing to tokChunk),
+// each normalised up to its last normalisation boundary, and the
+// normalised text is cut into tokens up to its last stop character (see
+// isStop), where neither a placeholder nor a word can continue; the rest
+// waits for the next chunk. Once the limit is reached the rest of the text
+// is not looked at, so a record costs a scan for non-ASCII bytes plus work
+// and memory for the part that gives its tokens. A stretch without a stop character (one very long word, a
+// run of ideographs without spaces or punctuation, a run of combining
+// marks without a starter) is normalised whole before it is cut.
 func (t *Tokenizer) Tokenize(ts *Tokens, text []byte) {
 	if isASCII(text) {
 		t.tokenizeASCII(ts, text)
@@ -158,8 +188,18 @@ func (t *Tokenizer) Tokenize(ts *Tokens, text []byte) {
 // tokenizeASCII is the fast path for ASCII text.
 func (t *Tokenizer) tokenizeASCII(ts *Tokens, text []byte) {
 	ts.Reset()
-	ts.a = appendLowerASCII(ts.a[:0], text)
-	t.tokenizeNormal(ts, ts.a, cutASCII)
+	limit := t.s.Limit()
+	chunk, most := t.chunkSizes()
+	for len(text) > 0 && ts.Len() < limit {
+		n := len(text)
+		if n > chunk {
+			n = stopCut(text, chunk)
+		}
+		chunk = min(2*chunk, most)
+		ts.a = appendLowerASCII(ts.a[:0], text[:n])
+		t.tokenizeNormal(ts, ts.a, cutASCII)
+		text = text[n:]
+	}
 }
 
 // tokenizeGeneral is the path for any text, with word segmenter mode; on
@@ -167,28 +207,202 @@ func (t *Tokenizer) tokenizeASCII(ts *Tokens, text []byte) {
 // gives the same tokens.
 func (t *Tokenizer) tokenizeGeneral(ts *Tokens, text []byte, mode int) {
 	ts.Reset()
-	t.tokenizeNormal(ts, t.normalize(ts, text), mode)
+	ts.a, ts.c, ts.w = ts.a[:0], ts.c[:0], ts.w[:0]
+	limit := t.s.Limit()
+	chunk, most := t.chunkSizes()
+	for ts.Len() < limit {
+		n := len(text)
+		if n > chunk {
+			n = runeCut(text, chunk)
+		}
+		chunk = min(2*chunk, most)
+		end := n == len(text)
+		carried := len(ts.w)
+		ts.normalizeChunk(text[:n], end)
+		text = text[n:]
+		q := len(ts.w)
+		if !end {
+			if q = lastStop(ts.w, carried); q == 0 {
+				continue
+			}
+		}
+		t.tokenizeNormal(ts, ts.w[:q], mode)
+		if end {
+			return
+		}
+		ts.w = ts.w[:copy(ts.w, ts.w[q:])]
+	}
 }
 
-// normalize returns text after the clean-up and normalisation steps, in
-// one of ts's scratch buffers.
-func (t *Tokenizer) normalize(ts *Tokens, text []byte) []byte {
-	ts.a = cleanUp(ts.a[:0], text)
-	s := ts.a
+// normalizeChunk applies the clean-up and normalisation steps to the next
+// chunk of a text, which must end before an ASCII byte or the first byte
+// of a valid UTF-8 encoding (or at the end of the text: end), and appends
+// to ts.w what of the normalised text is final. Each normalisation takes
+// its input up to the last normalisation boundary and keeps the rest for
+// the next chunk; end flushes everything. Case folding maps each
+// character on its own and needs no carry.
+func (ts *Tokens) normalizeChunk(chunk []byte, end bool) {
+	carried := len(ts.a)
+	ts.a = cleanUp(ts.a, chunk)
+	cut := len(ts.a)
+	if !end {
+		cut = lastBoundary(ts.a, carried)
+	}
+	s := ts.a[:cut]
 	if n := norm.NFKC.QuickSpan(s); n < len(s) {
 		ts.b = ts.appendNFKC(ts.b[:0], s, n)
 		s = ts.b
 	}
-	var changed bool
-	ts.c, changed = appendFold(ts.c[:0], s)
-	if changed {
-		s = ts.c
-		if n := norm.NFKC.QuickSpan(s); n < len(s) {
-			ts.a = ts.appendNFKC(ts.a[:0], s, n) // ts.a is free: s is ts.c
-			s = ts.a
+	carried = len(ts.c)
+	var folded bool
+	ts.c, folded = appendFold(ts.c, s)
+	ts.a = ts.a[:copy(ts.a, ts.a[cut:])]
+
+	cut = len(ts.c)
+	if !end {
+		cut = lastBoundary(ts.c, carried)
+	}
+	s = ts.c[:cut]
+	// Text that folding left unchanged, with nothing carried before it,
+	// is the first NFKC's output and needs no second.
+	if !folded && carried == 0 {
+		ts.w = append(ts.w, s...)
+	} else if n := norm.NFKC.QuickSpan(s); n < len(s) {
+		ts.w = ts.appendNFKC(ts.w, s, n)
+	} else {
+		ts.w = append(ts.w, s...)
+	}
+	ts.c = ts.c[:copy(ts.c, ts.c[cut:])]
+}
+
+// lastBoundary is the start of the last character of valid UTF-8 s before
+// which NFKC has a boundary, or 0: s[:i] and s[i:] normalise on their
+// own. s[:from] is known to hold no boundary after its start, so the
+// search stops there (a long run of marks is not searched again for every
+// chunk).
+func lastBoundary(s []byte, from int) int {
+	for i := len(s); i > from; {
+		_, n := utf8.DecodeLastRune(s[:i])
+		i -= n
+		if i > 0 && boundaryBefore(s[i:]) {
+			return i
 		}
 	}
-	return s
+	return 0
+}
+
+// boundaryBefore reports whether NFKC has a boundary before the first
+// character of s: it is a starter that never combines with what precedes
+// it, and so is the first character of its decomposition. x/text reports
+// a boundary before the Hangul compatibility jamo U+3133..U+3163 and
+// U+FFA3..U+FFDC that decompose to vowel or trailing jamo, yet composes
+// them with a preceding syllable ("\uAC00\u3135" is U+AC05), which moves
+// where it inserts U+034F into a long run of marks after them (UAX #15
+// stream-safe format).
+func boundaryBefore(s []byte) bool {
+	if s[0] < utf8.RuneSelf {
+		return true
+	}
+	p := norm.NFKC.Properties(s)
+	if !p.BoundaryBefore() {
+		return false
+	}
+	d := p.Decomposition()
+	return d == nil || norm.NFKC.Properties(d).BoundaryBefore()
+}
+
+// runeCut is where a chunk of about n bytes of text (n < len(text)) may
+// end for the clean-up step: before an ASCII byte or the first byte of a
+// valid encoding, so that no character and no run of invalid bytes is
+// split. It is len(text) when there is no such place.
+func runeCut(text []byte, n int) int {
+	ok := func(i int) bool {
+		if text[i] < utf8.RuneSelf {
+			return true
+		}
+		r, size := utf8.DecodeRune(text[i:])
+		return r != utf8.RuneError || size > 1
+	}
+	for i := n; i > 0; i-- {
+		if ok(i) {
+			return i
+		}
+	}
+	for i := n + 1; i < len(text); i++ {
+		if ok(i) {
+			return i
+		}
+	}
+	return len(text)
+}
+
+// isStop reports whether normalised text s may be cut into tokens before
+// s[q] (0 < q < len(s)) as two texts: s[:q] and s[q:] give the tokens of
+// s. The stop characters are whitespace, the ASCII characters that no URL
+// holds (`<>\^{|}` and backtick) and the ideographic comma, full stop and
+// corner brackets (U+3001, U+3002, U+300C, U+300D). None is a letter,
+// digit, mark or part of a placeholder, so every placeholder rule and
+// every look-back or look-ahead of one stops at it; none is Extend,
+// Format, ZWJ, MidLetter, MidNum or MidNumLet in UAX #29, so no word rule
+// looks past it, and UAX #29 has a word boundary before it except for a
+// space after a space (WB3d) and LF after CR (WB3).
+func isStop(s []byte, q int) bool {
+	switch s[q] {
+	case ' ':
+		// uniseg joins a space to a space before it also across Extend,
+		// Format and ZWJ characters (" \u200d " is one segment), so a
+		// space after one of those is no stop either.
+		r, _ := utf8.DecodeLastRune(s[:q])
+		return !unicode.Is(wsegSpace, r) && !wordExtend(r)
+	case '\n':
+		return s[q-1] != '\r'
+	case '\t', '\v', '\f', '\r', '<', '>', '\\', '^', '`', '{', '|', '}':
+		return true
+	case 0xE3:
+		return q+2 < len(s) && s[q+1] == 0x80 &&
+			(s[q+2] == 0x81 || s[q+2] == 0x82 || s[q+2] == 0x8C || s[q+2] == 0x8D)
+	}
+	return false
+}
+
+// wsegSpace is Word_Break=WSegSpace (WordBreakProperty.txt, Unicode 15.0.0).
+var wsegSpace = &unicode.RangeTable{R16: []unicode.Range16{
+	{0x0020, 0x0020, 1}, {0x1680, 0x1680, 1}, {0x2000, 0x2006, 1}, {0x2008, 0x200A, 1},
+	{0x205F, 0x205F, 1}, {0x3000, 0x3000, 1},
+}}
+
+// wordExtend reports whether r may be Extend, Format or ZWJ in UAX #29
+// (WordBreakProperty.txt: Grapheme_Extend, spacing marks, emoji
+// modifiers; Format is Cf but for a few): any mark, any Cf, U+1F3FB..U+1F3FF
+// and the halfwidth sound marks U+FF9E, U+FF9F. It may say yes for a
+// character that is none of these; a stop is then missed, never made.
+func wordExtend(r rune) bool {
+	return unicode.In(r, unicode.M, unicode.Cf) || r >= 0x1F3FB && r <= 0x1F3FF || r == 0xFF9E || r == 0xFF9F
+}
+
+// lastStop is the last q at which isStop(s, q), or 0; s[:from] is known
+// to hold none after its start.
+func lastStop(s []byte, from int) int {
+	for q := len(s) - 1; q >= max(from, 1); q-- {
+		if isStop(s, q) {
+			return q
+		}
+	}
+	return 0
+}
+
+// stopCut is where the first piece of ASCII text (longer than n) ends: the
+// last stop at or before n, else the first after it, else len(text).
+func stopCut(text []byte, n int) int {
+	if q := lastStop(text[:n+1], 0); q > 0 {
+		return q
+	}
+	for q := n + 1; q < len(text); q++ {
+		if isStop(text, q) {
+			return q
+		}
+	}
+	return len(text)
 }
 
 // appendFold appends the full case folding of s to dst and reports whether

@@ -12,8 +12,9 @@ import (
 // UTF-8, hold no whitespace and number at most Settings().Limit(); two
 // calls (fresh and reused storage) agree; the input is left unchanged. On
 // the input's ASCII projection (each byte & 0x7f) the fast path agrees
-// with the general path, and on the input itself the hybrid segmenter
-// agrees with uniseg alone. Seeds are in testdata/fuzz/FuzzTokenize.
+// with the general path, on the input itself the hybrid segmenter agrees
+// with uniseg alone, and the incremental path (small chunks and the
+// default) agrees with the whole-text path. Seeds are in testdata/fuzz/FuzzTokenize.
 func FuzzTokenize(f *testing.F) {
 	for _, c := range tokenizeCases {
 		f.Add([]byte(c.in), uint8(0))
@@ -65,6 +66,17 @@ func FuzzTokenize(f *testing.F) {
 		}
 		if msg := tokCompareHybrid(text); msg != "" {
 			t.Fatal(msg)
+		}
+		// The incremental path, in chunks of 1 to 8 bytes, gives the
+		// tokens of the whole-text path.
+		want := tokRefTokenize(set, text)
+		small := &Tokenizer{s: set, chunk: 1 + len(text)%8}
+		small.Tokenize(&ts, text)
+		if got := tokStrings(&ts); !reflect.DeepEqual(got, want) && !(len(got) == 0 && len(want) == 0) {
+			t.Fatalf("chunk %d: %+q, whole-text path %+q", small.chunk, got, want)
+		}
+		if !reflect.DeepEqual(first, want) && !(len(first) == 0 && len(want) == 0) {
+			t.Fatalf("%+q, whole-text path %+q", first, want)
 		}
 	})
 }

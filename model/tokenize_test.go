@@ -6,6 +6,7 @@ import (
 	"math/rand/v2"
 	"os"
 	"reflect"
+	"runtime"
 	"slices"
 	"strconv"
 	"strings"
@@ -238,7 +239,6 @@ func toNFKCCasefold(m map[rune][]rune, s []rune) string {
 // characters that compose, decompose, fold or vanish.
 func TestTokenizeNFKCCasefold(t *testing.T) {
 	m := tokNFKCCasefold(t)
-	tk := NewTokenizer(TokenizerSettings{})
 	var ts Tokens
 	bad := 0
 	for r := rune(0); r <= utf8.MaxRune; r++ {
@@ -247,7 +247,7 @@ func TestTokenizeNFKCCasefold(t *testing.T) {
 		}
 		in := []rune{r}
 		want := toNFKCCasefold(m, in)
-		if got := string(tk.normalize(&ts, []byte(string(in)))); got != want {
+		if got := string(tokNormalize(&ts, []byte(string(in)), tokChunk)); got != want {
 			if bad++; bad <= 20 {
 				t.Errorf("U+%04X: normalised to %+q, NFKC_Casefold gives %+q", r, got, want)
 			}
@@ -274,7 +274,9 @@ func TestTokenizeNFKCCasefold(t *testing.T) {
 			in[j] = pool[rng.IntN(len(pool))]
 		}
 		want := toNFKCCasefold(m, []rune(norm.NFKC.String(string(in))))
-		if got := string(tk.normalize(&ts, []byte(string(in)))); got != want {
+		// Chunks of 1 to 4 bytes: the incremental normalisation at every
+		// boundary it may cut at.
+		if got := string(tokNormalize(&ts, []byte(string(in)), 1+rng.IntN(4))); got != want {
 			if bad++; bad <= 20 {
 				t.Errorf("%+q: normalised to %+q, toNFKC_Casefold(NFKC(s)) gives %+q", string(in), got, want)
 			}
@@ -283,6 +285,56 @@ func TestTokenizeNFKCCasefold(t *testing.T) {
 	if bad > 0 {
 		t.Errorf("%d mismatches", bad)
 	}
+}
+
+// tokNormalize runs the clean-up and normalisation steps over all of
+// text, taken in chunks of about chunk bytes as Tokenize takes them, and
+// returns the normalised text (in ts's storage).
+func tokNormalize(ts *Tokens, text []byte, chunk int) []byte {
+	ts.a, ts.c, ts.w = ts.a[:0], ts.c[:0], ts.w[:0]
+	for {
+		n := len(text)
+		if n > chunk {
+			n = runeCut(text, chunk)
+		}
+		ts.normalizeChunk(text[:n], n == len(text))
+		if text = text[n:]; len(text) == 0 {
+			return ts.w
+		}
+	}
+}
+
+// tokRefNormalize is the clean-up and normalisation steps applied to the
+// whole text at once, as the tokenizer did before it worked in chunks:
+// the reference for the incremental path.
+func tokRefNormalize(text []byte) []byte {
+	var ts Tokens
+	s := cleanUp(nil, text)
+	if n := norm.NFKC.QuickSpan(s); n < len(s) {
+		s = ts.appendNFKC(nil, s, n)
+	}
+	f, changed := appendFold(nil, s)
+	if changed {
+		s = f
+		if n := norm.NFKC.QuickSpan(s); n < len(s) {
+			s = ts.appendNFKC(nil, s, n)
+		}
+	}
+	return s
+}
+
+// tokRefTokenize is the tokenizer's whole-text path (normalise all, then
+// find placeholders and words over all of it, stop at the limit): the
+// reference the incremental Tokenize is compared with.
+func tokRefTokenize(set TokenizerSettings, text []byte) []string {
+	tk := NewTokenizer(set)
+	var ts Tokens
+	if isASCII(text) {
+		tk.tokenizeNormal(&ts, appendLowerASCII(nil, text), cutASCII)
+	} else {
+		tk.tokenizeNormal(&ts, tokRefNormalize(text), cutHybrid)
+	}
+	return tokStrings(&ts)
 }
 
 type tokenizeCase struct {
@@ -578,25 +630,40 @@ func TestTokenizeASCIIDifferential(t *testing.T) {
 	}
 }
 
-// TestTokenizeAllocs: no allocation per call after warm-up on ASCII text.
+// TestTokenizeAllocs: no allocation per call after warm-up, on ASCII,
+// mixed and non-ASCII lines and on texts of several chunks (past the limit
+// and not). Measured: 0 allocations per call for every set, before and
+// after tokenizing in chunks. testing.AllocsPerRun counts allocations,
+// which do not vary from run to run, so the bound is the measured value
+// itself: any allocation per call is a regression, there is no noise to
+// leave room for.
 func TestTokenizeAllocs(t *testing.T) {
-	tk := NewTokenizer(TokenizerSettings{})
-	var ts Tokens
-	for _, lines := range [][]string{tokBenchASCII, tokBenchUnicode} {
-		for _, l := range lines {
-			tk.Tokenize(&ts, []byte(l))
+	long := strings.Repeat(strings.Join(tokBenchUnicode, " "), 30)
+	for _, c := range []struct {
+		name  string
+		set   TokenizerSettings
+		lines []string
+	}{
+		{"ascii", TokenizerSettings{}, tokBenchASCII},
+		{"mixed", TokenizerSettings{}, tokBenchMixed},
+		{"unicode", TokenizerSettings{}, tokBenchUnicode},
+		{"long unicode, limit reached", TokenizerSettings{}, []string{long}},
+		{"long unicode, no limit", TokenizerSettings{MaxTokens: MaxTokensLimit}, []string{long}},
+		{"U+FDFA", TokenizerSettings{MaxTokens: 60}, []string{strings.Repeat("\uFDFA", 20000)}},
+	} {
+		tk := NewTokenizer(c.set)
+		var ts Tokens
+		texts := make([][]byte, len(c.lines))
+		for i, l := range c.lines {
+			texts[i] = []byte(l)
+			tk.Tokenize(&ts, texts[i])
 		}
-		i := 0
-		allocs := testing.AllocsPerRun(1000, func() {
-			tk.Tokenize(&ts, []byte(lines[i%len(lines)]))
-			i++
-		})
-		if isASCII([]byte(lines[0])) {
-			if allocs != 0 {
-				t.Errorf("ASCII lines: %.2f allocations per call, want 0", allocs)
+		// Line by line: AllocsPerRun truncates the mean to an integer, so
+		// over all lines at once one line's allocation could vanish.
+		for _, text := range texts {
+			if allocs := testing.AllocsPerRun(50, func() { tk.Tokenize(&ts, text) }); allocs != 0 {
+				t.Errorf("%s: %+.40q: %.0f allocations per call, want 0", c.name, text, allocs)
 			}
-		} else {
-			t.Logf("non-ASCII lines: %.2f allocations per call", allocs)
 		}
 	}
 }
@@ -641,4 +708,135 @@ func ExampleTokenizer_Tokenize() {
 	}
 	fmt.Println()
 	// Output: is the <num> <num> ferry to osk late ask <handle> or see <url> 🙏
+}
+
+// tokAdversarial are fragments for the incremental differential test:
+// long words and numbers, runs of combining marks (more than the 30
+// non-starters after which NFKC inserts U+034F, UAX #15 stream-safe
+// format), U+FDFA (18 characters under NFKC, with spaces), characters
+// that NFKC turns into stop characters or spaces (U+3000, U+2000, U+FF1C),
+// WSegSpace characters other than " " (U+1680), CRLF, emoji ZWJ, skin
+// tone and flag sequences, Hangul jamo that compose across a chunk cut
+// (U+3135 is a boundary before NFKC but becomes the trailing jamo U+11AC,
+// which the second NFKC composes with a preceding U+AC00),
+// folding that needs a second NFKC, placeholders split by a stop
+// character, and every stop character.
+var tokAdversarial = []string{
+	strings.Repeat("sail", 40), strings.Repeat("9", 70), strings.Repeat("\u0301", 35), strings.Repeat("\u0301\u0316", 20),
+	"a" + strings.Repeat("\u0308", 31) + "b", "\uFDFA", "\uFDFA\uFDFA", "\u3000", "\u2000", "\uFF1C", "\uFF5C", "\u1680", "\u1680 ",
+	"\r\n", "\r", "\n", "\n\r", "\t", "\v", "\f", " ", "  ", "<", ">", "\\", "^", "`", "{", "|", "}", "、", "。", "「", "」",
+	"👨\u200d👩\u200d👧", "\u200d", "👍🏽", " 🏽", "🇬🇷🇮🇹", "🇦", "1\uFE0F\u20E3", "\U0001F3F4\U000E0067\U000E0062\U000E007F",
+	"\u1100", "\u1161", "\u11A8", "\uAC00", "\uAC00\u3135", "\u3135", "\u314F", "\u01F0", "J\u030C", "\u1F98\u0301", "\u0345", "\u0390", "İ", "ẞ", "\u13A0\uAB70",
+	"東京", "フェリー", "ー", "ｶ", "Ω", "ﬁ", "ＦＥＲＲＹ", "＠ｏｒｌａ", "ｗｗｗ．", "\xff", "\xe2\x82", "\xc3", "\u00AD", "\uFE0F", "\u2019",
+	"https://ferry.example/東京", "mira@isles.example", "@orla", "www.ferry.example", "東京@isles.example", "x://", "a.", ".b", "1,", ",2",
+	"א\"ב", "a'b", "3.14",
+}
+
+// tokRandomMixed is a random text of tokFragments, tokNonASCII and
+// tokAdversarial pieces.
+func tokRandomMixed(rng *rand.Rand) string {
+	var sb strings.Builder
+	for n := rng.IntN(24); n >= 0; n-- {
+		switch rng.IntN(3) {
+		case 0:
+			sb.WriteString(tokFragments[rng.IntN(len(tokFragments))])
+		case 1:
+			sb.WriteString(tokNonASCII[rng.IntN(len(tokNonASCII))])
+		default:
+			sb.WriteString(tokAdversarial[rng.IntN(len(tokAdversarial))])
+		}
+	}
+	return sb.String()
+}
+
+// TestTokenizeIncrementalDifferential: Tokenize, which normalises and cuts
+// a text chunk by chunk and stops at the limit, gives exactly the tokens
+// of the whole-text path (tokRefTokenize) for every max_tokens from 1 to
+// 60 and the largest allowed (no limit in effect), with chunks from 1 byte
+// (a cut at every place the tokenizer may cut) to the default size.
+func TestTokenizeIncrementalDifferential(t *testing.T) {
+	rng := rand.New(rand.NewPCG(tokSeed(t), 8))
+	var inputs []string
+	for _, c := range tokenizeCases {
+		inputs = append(inputs, c.in)
+	}
+	inputs = append(inputs, tokBenchASCII...)
+	inputs = append(inputs, tokBenchUnicode...)
+	inputs = append(inputs, tokBenchMixed...)
+	for range tokRounds(1500) {
+		inputs = append(inputs, tokRandomMixed(rng))
+	}
+	for range tokRounds(300) {
+		inputs = append(inputs, tokRandomASCII(rng)+tokRandomASCII(rng)+tokRandomASCII(rng))
+	}
+	// Longer than one default chunk, with and without stop characters.
+	inputs = append(inputs, strings.Repeat("\uFDFA", 3000), strings.Repeat("東京へ。", 800), strings.Repeat("x", 9000)+" y",
+		strings.Repeat("a\u0301", 5000), strings.Repeat("\u0301", 5000)+" a", strings.Repeat("Ferry to Osk, ", 700))
+	var limits []int
+	for n := 1; n <= 60; n++ {
+		limits = append(limits, n)
+	}
+	limits = append(limits, MaxTokensLimit)
+	var ts Tokens
+	for i, in := range inputs {
+		text := []byte(in)
+		base := tokSettings[i%4] // the four without a limit of their own
+		chunks := []int{1 + rng.IntN(8), 0}
+		if i%16 == 0 {
+			chunks = []int{1, 2, 3, 5, 8, 13, 64, 0}
+		}
+		full := tokRefTokenize(TokenizerSettings{KeepPunct: base.KeepPunct, NoPlaceholders: base.NoPlaceholders, MaxTokens: MaxTokensLimit}, text)
+		for _, limit := range limits {
+			set := base
+			set.MaxTokens = limit
+			want := tokRefTokenize(set, text)
+			if limit == MaxTokensLimit && !reflect.DeepEqual(want, full) {
+				t.Fatalf("reference not deterministic on %+q", in)
+			}
+			for _, chunk := range chunks {
+				tk := &Tokenizer{s: set, chunk: chunk}
+				tk.Tokenize(&ts, text)
+				if got := tokStrings(&ts); !reflect.DeepEqual(got, want) && !(len(got) == 0 && len(want) == 0) {
+					t.Fatalf("%+v chunk %d, %+q:\n got  %+q\n want %+q", set, chunk, in, got, want)
+				}
+			}
+		}
+	}
+}
+
+// TestTokenizeBoundedMemory: with max_tokens 60, an 18 MB record costs the
+// tokenizer less than 1 MiB of allocations, storage growth included
+// (runtime.MemStats.TotalAlloc, bytes, not time): it normalises the text
+// only as far as its first 60 tokens need. The whole-text path allocated
+// over 1 GB for the U+FDFA text (NFKC makes each character 18) and a copy
+// of the text for the others. The first 60 tokens are those of the
+// whole-text path on the text's first 64 KiB.
+func TestTokenizeBoundedMemory(t *testing.T) {
+	const size = 18 << 20
+	for _, c := range []struct{ name, unit string }{
+		{"U+FDFA", "\uFDFA"},
+		{"ascii", "Is the 10:30 ferry to Osk late? see https://ferry.example/live "},
+		{"mixed", "Fähre nach Øsk 🙏 ＦＵＬＬ ﬁve 👨\u200d👩\u200d👧 "},
+		{"ideographs with stops", "東京へ行くフェリー、"},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			text := []byte(strings.Repeat(c.unit, size/len(c.unit)))
+			set := TokenizerSettings{MaxTokens: 60}
+			tk := NewTokenizer(set)
+			var ts Tokens
+			var before, after runtime.MemStats
+			runtime.ReadMemStats(&before)
+			tk.Tokenize(&ts, text)
+			runtime.ReadMemStats(&after)
+			got := after.TotalAlloc - before.TotalAlloc
+			if got >= 1<<20 {
+				t.Errorf("%d MiB text: %d bytes allocated, want under 1 MiB", len(text)>>20, got)
+			}
+			t.Logf("%d MiB text: %d bytes allocated", len(text)>>20, got)
+			want := tokRefTokenize(set, text[:runeCut(text, 64<<10)])
+			if got := tokStrings(&ts); !reflect.DeepEqual(got, want) {
+				t.Errorf("tokens %+q, want %+q", got, want)
+			}
+		})
+	}
 }
