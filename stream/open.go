@@ -8,6 +8,7 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"strings"
 
 	"github.com/klauspost/compress/gzip"
 	"github.com/klauspost/compress/zstd"
@@ -198,7 +199,7 @@ func openInput(name string, stdin io.Reader, onRead func(int)) (*input, error) {
 		zr, err := gzip.NewReader(br)
 		if err != nil {
 			in.closer()
-			return nil, fmt.Errorf("%w (gzip: %v)", ErrTruncated, err)
+			return nil, fmt.Errorf("%w (%s)", ErrTruncated, decoderSays("gzip", err))
 		}
 		zr.Multistream(false)
 		in.r, in.kind = skipBOM(&gzipMembers{zr: zr, br: br}), "gzip"
@@ -280,11 +281,22 @@ func readOne(in *input, file int, pool chan []byte, send func(chunk) bool, quit 
 		}
 		if err != nil {
 			if in.kind != "" {
-				err = fmt.Errorf("%w (%s: %v)", ErrTruncated, in.kind, err)
+				err = fmt.Errorf("%w (%s)", ErrTruncated, decoderSays(in.kind, err))
 			} else {
 				err = fmt.Errorf("read: %w", err)
 			}
 			return send(chunk{file: file, eof: true, err: err})
 		}
 	}
+}
+
+// decoderSays words a decoder's error as "kind: message", once: the
+// decoders' own messages often start with their name already
+// ("gzip: invalid checksum").
+func decoderSays(kind string, err error) string {
+	msg := err.Error()
+	if strings.HasPrefix(msg, kind+": ") {
+		return msg
+	}
+	return kind + ": " + msg
 }

@@ -7,6 +7,7 @@ import (
 	"os"
 	"os/exec"
 	"path/filepath"
+	"strings"
 	"testing"
 
 	"github.com/klauspost/compress/gzip"
@@ -74,5 +75,28 @@ func TestOpenDecodes(t *testing.T) {
 	}
 	if got, _ := io.ReadAll(r); !bytes.Equal(got, want) {
 		t.Errorf("stdin: %q", got)
+	}
+}
+
+// TestDecoderErrorsNameTheFormatOnce: a corrupt gzip member says "gzip:"
+// once, not "gzip: gzip: invalid checksum". The CRC-32 at the end of the
+// member (RFC 1952 section 2.3.1) is flipped.
+func TestDecoderErrorsNameTheFormatOnce(t *testing.T) {
+	var gz bytes.Buffer
+	zw := gzip.NewWriter(&gz)
+	zw.Write([]byte("a line\n"))
+	zw.Close()
+	b := gz.Bytes()
+	b[len(b)-8] ^= 0xff
+	var seen []error
+	_, err := Run(t.Context(), Options{Tagger: nullTagger{}, OnError: func(e error) { seen = append(seen, e) }}, []string{"-"}, bytes.NewReader(b), io.Discard)
+	if len(seen) > 0 {
+		err = seen[0]
+	}
+	if err == nil {
+		t.Fatal("a corrupt gzip member read without error")
+	}
+	if msg := err.Error(); strings.Count(msg, "gzip") != 1 {
+		t.Errorf("error %q names gzip %d times", msg, strings.Count(msg, "gzip"))
 	}
 }
