@@ -13,10 +13,7 @@ import (
 	"sort"
 	"strings"
 	"syscall"
-	"time"
 
-	"github.com/mattn/go-isatty"
-	"github.com/schollz/progressbar/v3"
 	"github.com/spf13/cobra"
 
 	"convtag/model"
@@ -216,20 +213,15 @@ a same-size overwrite would switch the model in the middle of a block.
 			defer close(hupDone)
 			go reloadOnHangup(a, modelPath, why, o.Switch, hup, hupDone)
 
-			if bar := newProgress(a, progress, args); bar != nil {
-				var last time.Time
-				start := time.Now()
-				o.Progress = func(read, records int64) {
-					if now := time.Now(); now.Sub(last) >= 200*time.Millisecond {
-						last = now
-						bar.Describe(fmt.Sprintf("%.0f records/s", float64(records)/now.Sub(start).Seconds()))
-						bar.Set64(read)
-					}
-				}
-				defer bar.Finish()
+			bar := newProgress(a, progress, args)
+			if bar != nil {
+				o.Progress = bar.update
 			}
 
 			st, err := stream.Run(ctx, o, args, a.stdin, a.stdout)
+			if bar != nil {
+				bar.end(st, err == nil)
+			}
 			if err == nil && rej != nil {
 				if err = rej.Commit(); err != nil {
 					err = fmt.Errorf("--rejects: %w", err)
@@ -284,7 +276,7 @@ a same-size overwrite would switch the model in the middle of a block.
 	f.IntVar(&o.BlockSize, "batch", 0, "bytes of input a worker takes at a time (default 1048576; at most 268435456)")
 	f.StringVar(&rejects, "rejects", "", "write records that cannot be tagged to FILE instead of the output")
 	f.BoolVar(&strict, "strict", false, "exit with status 3 at the end if any record was rejected")
-	f.StringVar(&progress, "progress", "auto", "progress bar on stderr: auto (when stderr is a terminal and the input size is known), on or off")
+	f.StringVar(&progress, "progress", "auto", "progress bar on stderr (bytes read of the inputs' size, records, records/s): auto (when stderr is a terminal and the input size is known), on or off")
 	f.BoolVar(&showStats, "stats", false, "print a closing summary on stderr")
 	return c
 }
@@ -527,51 +519,6 @@ func splitTags(list []string) []string {
 		}
 	}
 	return out
-}
-
-// newProgress returns a progress bar on stderr, or nil when there should be
-// none: --progress off, or auto with stderr not a terminal or the input
-// size unknown.
-func newProgress(a *app, mode string, inputs []string) *progressbar.ProgressBar {
-	if mode == "off" {
-		return nil
-	}
-	total := int64(0)
-	if len(inputs) == 0 {
-		inputs = []string{"-"}
-	}
-	for _, name := range inputs {
-		var st os.FileInfo
-		var err error
-		if name == "-" {
-			f, ok := a.stdin.(*os.File)
-			if !ok {
-				total = -1
-				break
-			}
-			st, err = f.Stat()
-		} else {
-			st, err = os.Stat(name)
-		}
-		if err != nil || !st.Mode().IsRegular() {
-			total = -1
-			break
-		}
-		total += st.Size()
-	}
-	if mode == "auto" {
-		f, ok := a.stderr.(*os.File)
-		if total < 0 || !ok || !isatty.IsTerminal(f.Fd()) {
-			return nil
-		}
-	}
-	return progressbar.NewOptions64(total,
-		progressbar.OptionSetWriter(a.stderr),
-		progressbar.OptionShowBytes(true),
-		progressbar.OptionSetPredictTime(true),
-		progressbar.OptionThrottle(200*time.Millisecond),
-		progressbar.OptionClearOnFinish(),
-	)
 }
 
 func writeStats(w io.Writer, st stream.Stats) {
