@@ -26,11 +26,16 @@ const (
 	exitRejected = 3 // records were rejected and --strict was given
 )
 
-const exitHelp = `Exit status:
+// exitHelp is the exit-status list of commands without --strict;
+// exitHelpStrict that of tag (and of convtag, which runs tag).
+const (
+	exitHelp = `Exit status:
   0  success
   1  runtime failure (unreadable input, write error, interrupted by SIGINT or SIGTERM)
-  2  usage error or unusable model file
+  2  usage error or unusable model file`
+	exitHelpStrict = exitHelp + `
   3  records rejected under --strict`
+)
 
 // exitError carries its own exit code.
 type exitError struct {
@@ -86,7 +91,7 @@ func newRoot(a *app) *cobra.Command {
 in order and without losing a record, with a 1-D convolutional network that
 runs on the CPU. With no command it runs "convtag tag".
 
-` + exitHelp,
+` + exitHelpStrict,
 		SilenceUsage:  true,
 		SilenceErrors: true,
 	}

@@ -198,3 +198,24 @@ func TestFoldFlagsMatchTrain(t *testing.T) {
 		t.Fatalf("only %d training flags on eval", n)
 	}
 }
+
+// TestExitHelpMatchesStrict: a command's help lists exit status 3 exactly
+// when it has --strict, and no flag's help shows its default twice.
+func TestExitHelpMatchesStrict(t *testing.T) {
+	root := newRoot(&app{})
+	for _, c := range append(root.Commands(), root) {
+		if c.Name() == "help" || c.Name() == "completion" || c.Name() == "man" || c.Name() == "version" {
+			continue
+		}
+		hasStrict := c.Flags().Lookup("strict") != nil || c == root
+		lists3 := strings.Contains(c.Long, "3  records rejected under --strict")
+		if hasStrict != lists3 {
+			t.Errorf("%s: --strict %v but exit status 3 listed %v", c.Name(), hasStrict, lists3)
+		}
+		c.Flags().VisitAll(func(f *pflag.Flag) {
+			if strings.Contains(f.Usage, "default") && f.DefValue != "" && f.DefValue != "0" && f.DefValue != "false" && f.DefValue != "[]" {
+				t.Errorf("%s --%s: usage %q names a default and cobra adds (default %s)", c.Name(), f.Name, f.Usage, f.DefValue)
+			}
+		})
+	}
+}

@@ -120,7 +120,7 @@ in-place write changes or removes pages under the running filter: a shorter
 file stops it with exit status 1 after the whole records tagged so far, and
 a same-size overwrite would switch the model in the middle of a block.
 
-` + exitHelp,
+` + exitHelpStrict,
 		Example: `  convtag tag chat.jsonl > tagged.jsonl
   zstd -dc archive.jsonl.zst | convtag tag -m ferry.safetensors --keep weather
   convtag tag --format text --emit jsonl notes.txt

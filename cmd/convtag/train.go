@@ -104,7 +104,7 @@ finish, and the run ends as usual.
 	fl.StringVar(&f.format, "format", stream.LabelledJSONL, "input format: jsonl or tsv (label<TAB>text)")
 	fl.StringVar(&f.dev, "dev", "", "held-out records for early stopping and the reported accuracy, instead of --dev-fraction")
 	fl.Float64Var(&f.devFraction, "dev-fraction", defaultDevFraction, "share of each tag's records held out when there is no --dev")
-	fl.IntVar(&f.dim, "vector-size", model.DefaultDim, "embedding size (default: the --vectors file's, else 128)")
+	fl.IntVar(&f.dim, "vector-size", model.DefaultDim, "embedding size (with --vectors, the vectors' own size unless given)")
 	fl.IntSliceVar(&f.widths, "widths", model.DefaultWidths, "convolution window widths, in words")
 	fl.IntVar(&f.filters, "filters", model.DefaultFilters, "filters per width")
 	fl.IntVar(&f.hidden, "hidden", 0, "size of a ReLU hidden layer before the output; 0 for none")
