@@ -122,7 +122,7 @@ a same-size overwrite would switch the model in the middle of a block.
 
 ` + exitHelpStrict,
 		Example: `  convtag tag chat.jsonl > tagged.jsonl
-  zstd -dc archive.jsonl.zst | convtag tag -m ferry.safetensors --keep weather
+  zstd -dc archive.jsonl.zst | convtag tag -m ferry.safetensors --keep schedule
   convtag tag --format text --emit jsonl notes.txt
   tail -F service.log | convtag tag -k msg --min-confidence 0.6 --append -o tagged.jsonl.gz`,
 		RunE: func(cmd *cobra.Command, args []string) error {
