@@ -353,7 +353,7 @@ func runSimilar(a *app, f *embedFlags, args []string) error {
 	case f.top < 1:
 		return usageErr("--count 10", "embed: --count %d is below 1", f.top)
 	}
-	r, err := os.Open(f.input)
+	r, err := stream.Open(f.input, nil)
 	if err != nil {
 		return withCode(exitFailure, fmt.Errorf("embed: %w", err))
 	}

@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"math/rand/v2"
 	"os"
+	"os/exec"
 	"path/filepath"
 	"slices"
 	"strconv"
@@ -191,5 +192,57 @@ func TestEmbedErrors(t *testing.T) {
 	}
 	if _, err := os.Stat(filepath.Join(dir, "o")); !os.IsNotExist(err) {
 		t.Errorf("a failed run left an output file: %v", err)
+	}
+}
+
+// TestCompressedVectors: a vectors file compressed with Debian's gzip or
+// zstd tools is read like the plain one, by --similar-to and by train
+// --vectors (same listing, same model file).
+func TestCompressedVectors(t *testing.T) {
+	dir := t.TempDir()
+	text, _ := embedCorpus(500)
+	in := filepath.Join(dir, "chat.txt")
+	os.WriteFile(in, []byte(text), 0o644)
+	vec := filepath.Join(dir, "v.wordvec.txt")
+	if code, _, errs := runCmd(t, "", "embed", "-o", vec, "--vector-size", "8", "--passes", "1", "--thin-above", "0", "-j", "1", "-q", in); code != exitOK {
+		t.Fatalf("embed: exit %d: %s", code, errs)
+	}
+	files := map[string]string{}
+	for tool, suffix := range map[string]string{"gzip": ".gz", "zstd": ".zst"} {
+		if _, err := exec.LookPath(tool); err != nil {
+			if os.Getenv("CI") != "" {
+				t.Fatalf("%s is not installed", tool)
+			}
+			t.Logf("%s not installed: case skipped", tool)
+			continue
+		}
+		if out, err := exec.Command(tool, "-kq", vec).CombinedOutput(); err != nil {
+			t.Fatalf("%s: %v: %s", tool, err, out)
+		}
+		files[tool] = vec + suffix
+	}
+	_, want, _ := runCmd(t, "", "embed", "--similar-to", "ferry", "--count", "3", "--from", vec)
+	plainModel := filepath.Join(dir, "plain.safetensors")
+	trainArgs := func(out, v string) []string {
+		return []string{"train", "-q", "-o", out, "--vectors", v, "--filters", "4", "--unseen-rows", "8", "--epochs", "1", "-j", "1",
+			"--dev", "../../testdata/demo/dev.jsonl", "../../testdata/demo/train.jsonl"}
+	}
+	if code, _, errs := runCmd(t, "", trainArgs(plainModel, vec)...); code != exitOK {
+		t.Fatalf("train --vectors: exit %d: %s", code, errs)
+	}
+	wantModel, _ := os.ReadFile(plainModel)
+	for tool, p := range files {
+		code, got, errs := runCmd(t, "", "embed", "--similar-to", "ferry", "--count", "3", "--from", p)
+		if code != exitOK || got != want {
+			t.Errorf("%s: --similar-to: exit %d, %q, want %q (%s)", tool, code, got, want, errs)
+		}
+		m := filepath.Join(dir, tool+".safetensors")
+		if code, _, errs := runCmd(t, "", trainArgs(m, p)...); code != exitOK {
+			t.Errorf("%s: train --vectors: exit %d: %s", tool, code, errs)
+			continue
+		}
+		if b, _ := os.ReadFile(m); !bytes.Equal(b, wantModel) {
+			t.Errorf("%s: train --vectors gave another model than the plain file", tool)
+		}
 	}
 }

@@ -118,7 +118,7 @@ finish, and the run ends as usual.
 	fl.IntVar(&f.minCount, "min-seen", defaultMinCount, "words seen fewer times have no row of their own and share the --unseen-rows")
 	fl.IntVar(&f.maxWords, "max-words", 0, "keep at most this many words, most frequent first; 0 for all")
 	fl.IntVar(&f.buckets, "unseen-rows", model.DefaultBuckets, "rows shared, by a hash of the word, among words with no row of their own")
-	fl.StringVar(&f.vectors, "vectors", "", "initial word vectors (text or binary word-vector format)")
+	fl.StringVar(&f.vectors, "vectors", "", "initial word vectors (text or binary word-vector format; plain, gzip, zstd or bzip2)")
 	fl.BoolVar(&f.freeze, "freeze-vectors", false, "keep the rows taken from --vectors fixed")
 	fl.StringVar(&f.classWeights, "class-weights", defaultClassWeights, "none, or balanced to weight each tag's loss by n/(tags*n_tag)")
 	fl.BoolVar(&f.noFold, "no-fold", false, "do not write the folded table (smaller file, slower tagging)")
@@ -287,7 +287,7 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 	words := model.BuildWords(counts, f.minCount, f.maxWords)
 	var vecs *vectors.Set
 	if f.vectors != "" {
-		vf, err := os.Open(f.vectors)
+		vf, err := stream.Open(f.vectors, nil)
 		if err != nil {
 			return withCode(exitFailure, fmt.Errorf("train: %w", err))
 		}
