@@ -12,6 +12,10 @@ import (
 
 func init() { commands = append(commands, newInspectCmd) }
 
+// builtinCaution is what inspect says first about the built-in model.
+const builtinCaution = `caution:        a demonstration (positive/negative sentiment of product, film and
+                restaurant reviews); not fit for moderation or any decision about a person`
+
 func newInspectCmd(a *app) *cobra.Command {
 	var asJSON, verify bool
 	var sf sampleFlags
@@ -77,6 +81,9 @@ windows.`,
 					}{in, sample})
 				}
 				return enc.Encode(in)
+			}
+			if path == "" {
+				fmt.Fprintln(a.stdout, builtinCaution)
 			}
 			if err := in.WriteText(a.stdout); err != nil {
 				return err

@@ -111,6 +111,13 @@ which writes in place. A .gz or .zst FILE to --append to must decode to its
 end (a killed run may have cut it); otherwise nothing is written, exit 1.
 A standard output closed at the start (>&-) is an error, exit 1.
 
+Without -m, tag uses the built-in model: a demonstration (positive or
+negative sentiment, trained on product, film and restaurant reviews), not
+fit for moderation or any decision about a person. A tag is a guess: do not
+act on a person on a tag alone; route records under --min-confidence to a
+person, and keep the confidence (and --why) with each decision (README,
+"Before you act on a tag").
+
 Signals: SIGINT and SIGTERM stop after writing whole lines, exit status 1.
 SIGHUP reopens the model file between two blocks (a file that fails any
 check of inspect --verify is reported and the old model kept) and, with

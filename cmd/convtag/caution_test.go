@@ -1,0 +1,43 @@
+package main
+
+import (
+	"os"
+	"strings"
+	"testing"
+)
+
+// TestBuiltinCautions: the README, tag --help and inspect of the built-in
+// model each say that it is a demonstration, not fit for decisions about
+// people, and the README has its "Before you act on a tag" section before
+// the worked example.
+func TestBuiltinCautions(t *testing.T) {
+	const phrase = "not fit for moderation or any decision about a person"
+	_, help, _ := runCmd(t, "", "tag", "--help")
+	_, inspect, _ := runCmd(t, "", "inspect")
+	_, inspectFile, _ := runCmd(t, "", "inspect", "../../testdata/fixture.safetensors")
+	b, err := os.ReadFile("../../README.md")
+	if err != nil {
+		t.Fatal(err)
+	}
+	readme := strings.Join(strings.Fields(string(b)), " ")
+	for name, text := range map[string]string{"tag --help": help, "inspect": inspect, "README": readme} {
+		if !strings.Contains(strings.Join(strings.Fields(text), " "), phrase) && !strings.Contains(strings.Join(strings.Fields(text), " "), strings.Replace(phrase, "any", "for any", 1)) {
+			t.Errorf("%s does not say the built-in model is %q", name, phrase)
+		}
+	}
+	if !strings.HasPrefix(inspect, "caution:") {
+		t.Errorf("inspect of the built-in model does not start with its caution:\n%s", inspect)
+	}
+	if strings.Contains(inspectFile, "caution:") {
+		t.Errorf("inspect of a trained model carries the built-in model's caution")
+	}
+	i, j := strings.Index(readme, "## Before you act on a tag"), strings.Index(readme, "## A worked example")
+	if i < 0 || j < 0 || i > j {
+		t.Errorf("README: \"Before you act on a tag\" at %d, worked example at %d", i, j)
+	}
+	for _, must := range []string{"human review", "appealed", "local law", "drifts"} {
+		if !strings.Contains(readme[max(i, 0):max(j, 0)], must) {
+			t.Errorf("README's caution section does not mention %q", must)
+		}
+	}
+}
