@@ -2,6 +2,7 @@ package main
 
 import (
 	"os"
+	"strconv"
 	"strings"
 	"testing"
 )
@@ -39,5 +40,36 @@ func TestBuiltinCautions(t *testing.T) {
 		if !strings.Contains(readme[max(i, 0):max(j, 0)], must) {
 			t.Errorf("README's caution section does not mention %q", must)
 		}
+	}
+}
+
+// TestStatsCountsRecordsForReview: --stats says how many records fell
+// below --min-confidence (those a person should look at), which must equal
+// the records the output tags unsure with a confidence above 0 (a text
+// with no words is unsure at confidence 0, and is counted apart).
+func TestStatsCountsRecordsForReview(t *testing.T) {
+	in, err := os.ReadFile("../../testdata/demo/chat.jsonl")
+	if err != nil {
+		t.Fatal(err)
+	}
+	input := string(in) + "{\"text\":\"!!!\"}\n"
+	code, out, errs := runCmd(t, input, "tag", "-m", fixture(t), "--min-confidence", "0.9", "--stats", "-j", "1")
+	if code != exitOK {
+		t.Fatalf("exit %d: %s", code, errs)
+	}
+	want := 0
+	for _, line := range strings.Split(strings.TrimSpace(out), "\n") {
+		if strings.Contains(line, `"tag":"unsure"`) && !strings.Contains(line, `"confidence":0.0000`) {
+			want++
+		}
+	}
+	if want == 0 {
+		t.Fatal("no record below 0.9: the check would be empty")
+	}
+	if line := "convtag: for review (below 0.9) " + strconv.Itoa(want) + "\n"; !strings.Contains(errs, line) {
+		t.Errorf("stats lack %q:\n%s", line, errs)
+	}
+	if !strings.Contains(errs, "convtag: no words         1\n") {
+		t.Errorf("stats do not count the text with no words:\n%s", errs)
 	}
 }

@@ -235,7 +235,7 @@ a same-size overwrite would switch the model in the middle of a block.
 				}
 			}
 			if showStats {
-				writeStats(a.stderr, st)
+				writeStats(a.stderr, st, o.UnsureTag, o.MinConfidence)
 			}
 			var ie *stream.InputError
 			if errors.As(err, &ie) && inputProblems > 0 {
@@ -528,7 +528,10 @@ func splitTags(list []string) []string {
 	return out
 }
 
-func writeStats(w io.Writer, st stream.Stats) {
+// writeStats prints the closing --stats summary. The records for a person
+// to look at are those tagged unsure: below --min-confidence, or with no
+// word the model knows of at all.
+func writeStats(w io.Writer, st stream.Stats, unsure string, minConf float64) {
 	p := func(name string, v any) { fmt.Fprintf(w, "convtag: %-16s %v\n", name, v) }
 	p("records in", st.Records)
 	p("records out", st.Written)
@@ -539,6 +542,12 @@ func writeStats(w io.Writer, st stream.Stats) {
 	sort.Strings(tags)
 	for _, t := range tags {
 		p("  tag "+t, st.Tags[t])
+	}
+	review := st.Tags[unsure]
+	if minConf > 0 {
+		p(fmt.Sprintf("for review (below %g)", minConf), review-st.NoWords)
+	} else {
+		p("for review", "0 (no --min-confidence)")
 	}
 	p("dropped", st.Dropped)
 	p("rejected", st.Rejected)
