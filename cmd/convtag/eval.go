@@ -32,7 +32,7 @@ const baselineKind = "naive Bayes"
 type evalFlags struct {
 	model, format, labelKey, plots, plotFormat, baselineTrain string
 	textKeys                                                  []string
-	asJSON, noBaseline                                        bool
+	asJSON, noBaseline, conservative                          bool
 	target                                                    float64
 	folds                                                     int
 	train                                                     trainFlags // for --folds
@@ -52,8 +52,16 @@ confidence bins and the reliability table) and, for thresholds from 0.50 to
 The same figures are given for the naive-Bayes baseline that train stores in
 the model file (or one fitted on --baseline-train FILE).
 
+Every precision and recall at a threshold comes with its 95% Wilson score
+interval and the count of records it rests on, marked * below 30 records.
+On few records precision can fall as the threshold rises (one confident
+mistake among few kept records).
+
 --target-precision P finds the lowest confidence threshold at which the tags
-kept reach precision P on these records; pass it to tag --min-confidence.
+kept reach precision P on these records and every higher threshold does
+too, so "at least that threshold" keeps the promise; pass it to tag
+--min-confidence. With --conservative, the lower end of that threshold's
+95% interval must reach P as well.
 --plots DIR draws the confusion matrix, the reliability diagram, the
 precision-recall curves and the learning curve of the model's training.
 
@@ -87,7 +95,8 @@ figures. Records with several labels are scored on the first.
 	fl.StringVar(&f.labelKey, "label-key", "label", "dotted path of the label (a string or an array of strings)")
 	fl.StringVar(&f.format, "format", stream.LabelledJSONL, "input format: jsonl or tsv (label<TAB>text)")
 	fl.BoolVar(&f.asJSON, "json", false, "print the figures as one JSON object")
-	fl.Float64Var(&f.target, "target-precision", 0, "find the lowest confidence threshold whose kept tags reach this precision")
+	fl.Float64Var(&f.target, "target-precision", 0, "find the lowest confidence threshold whose kept tags reach this precision, as does every higher one")
+	fl.BoolVar(&f.conservative, "conservative", false, "with --target-precision: the lower end of precision's 95% interval must reach it")
 	fl.StringVar(&f.plots, "plots", "", "write the figures as images into this directory")
 	fl.StringVar(&f.plotFormat, "plot-format", "png", "image format of --plots: png or svg")
 	fl.StringVar(&f.baselineTrain, "baseline-train", "", "fit the naive-Bayes baseline on these labelled records instead of using the stored one")
@@ -124,6 +133,9 @@ func (f *evalFlags) check(cmd *cobra.Command, args []string) error {
 	}
 	if f.format != stream.LabelledJSONL && f.format != stream.LabelledTSV {
 		return usageErr("--format jsonl or --format tsv", "eval: unknown --format %q", f.format)
+	}
+	if f.conservative && f.target == 0 {
+		return usageErr("--target-precision 0.9 --conservative", "eval: --conservative needs --target-precision")
 	}
 	if f.target != 0 && !(f.target > 0 && f.target <= 1) {
 		return usageErr("--target-precision 0.9", "eval: --target-precision %v is not in (0, 1]", f.target)
@@ -369,7 +381,7 @@ func runEval(a *app, f *evalFlags, args []string) error {
 	if len(s.gold) == 0 {
 		return withCode(exitFailure, fmt.Errorf("eval: %s: no record has a label of %s (%s)", strings.Join(args, ", "), name, labelList(m.Labels)))
 	}
-	opt := metrics.Options{TargetPrecision: f.target}
+	opt := metrics.Options{TargetPrecision: f.target, Conservative: f.conservative}
 	p := m.NewPredictor()
 	probs := make([][]float32, len(s.texts))
 	for i, t := range s.texts {
@@ -563,6 +575,45 @@ func pct(x metrics.Fraction) string {
 
 func itoa(n int) string { return strconv.Itoa(n) }
 
+// interval writes a 95% interval as [low,high] with two decimals.
+func interval(ci metrics.Interval) string {
+	if !ci.Low.Defined() || !ci.High.Defined() {
+		return "-"
+	}
+	return "[" + strconv.FormatFloat(float64(ci.Low), 'f', 2, 64) + "," + strconv.FormatFloat(float64(ci.High), 'f', 2, 64) + "]"
+}
+
+// few marks a count under metrics.FewRecords.
+func few(b bool) string {
+	if b {
+		return "*"
+	}
+	return ""
+}
+
+func fewWord(b bool) string {
+	if b {
+		return " (fewer than 30: read it with its interval)"
+	}
+	return ""
+}
+
+func anyFew(t metrics.Thresholds) bool {
+	for _, r := range t.Overall {
+		if r.Few && r.Kept > 0 {
+			return true
+		}
+	}
+	for _, l := range t.PerLabel {
+		for _, r := range l.Rows {
+			if r.Few && r.Kept > 0 || r.Relevant < metrics.FewRecords {
+				return true
+			}
+		}
+	}
+	return false
+}
+
 func writeEvalText(w io.Writer, o *evalOutput, modelFlag string) error {
 	var b strings.Builder
 	r := o.Report
@@ -649,18 +700,26 @@ func writeEvalText(w io.Writer, o *evalOutput, modelFlag string) error {
 
 	b.WriteString("\nthresholds, network: below the threshold a record is tagged unsure (tag --min-confidence)\n")
 	ot := table{indent: "  "}
-	ot.add("threshold", "tagged", "records", "precision", "recall")
+	ot.add("threshold", "tagged", "records", "precision", "95% interval", "recall", "95% interval")
 	for _, t := range r.Thresholds.Overall {
-		ot.add(strconv.FormatFloat(t.Threshold, 'f', 2, 64), pct(t.Coverage), itoa(t.Kept), frac(t.Precision), frac(t.Recall))
+		ot.add(strconv.FormatFloat(t.Threshold, 'f', 2, 64), pct(t.Coverage), itoa(t.Kept)+few(t.Few),
+			frac(t.Precision), interval(t.PrecisionCI), frac(t.Recall), interval(t.RecallCI))
 	}
 	ot.write(&b)
 	for _, what := range []struct {
 		name string
-		get  func(metrics.ThresholdRow) metrics.Fraction
+		get  func(metrics.ThresholdRow) string
 	}{
-		{"precision", func(t metrics.ThresholdRow) metrics.Fraction { return t.Precision }},
-		{"recall", func(t metrics.ThresholdRow) metrics.Fraction { return t.Recall }},
-		{"coverage (share of the label's tags kept)", func(t metrics.ThresholdRow) metrics.Fraction { return t.Coverage }},
+		{"precision [95% interval] over the records kept (* fewer than 30)", func(t metrics.ThresholdRow) string {
+			if t.Kept == 0 {
+				return "-"
+			}
+			return frac(t.Precision) + " " + interval(t.PrecisionCI) + " " + itoa(t.Kept) + few(t.Few)
+		}},
+		{"recall [95% interval] over the label's records", func(t metrics.ThresholdRow) string {
+			return frac(t.Recall) + " " + interval(t.RecallCI) + " " + itoa(t.Relevant) + few(t.Relevant < metrics.FewRecords)
+		}},
+		{"coverage (share of the label's tags kept)", func(t metrics.ThresholdRow) string { return frac(t.Coverage) }},
 	} {
 		fmt.Fprintf(&b, "\n  per label, %s\n", what.name)
 		t := table{indent: "  "}
@@ -668,19 +727,26 @@ func writeEvalText(w io.Writer, o *evalOutput, modelFlag string) error {
 		for i, lv := range metrics.Levels {
 			cells := []string{strconv.FormatFloat(lv, 'f', 2, 64)}
 			for _, lt := range r.Thresholds.PerLabel {
-				cells = append(cells, frac(what.get(lt.Rows[i])))
+				cells = append(cells, what.get(lt.Rows[i]))
 			}
 			t.add(cells...)
 		}
 		t.write(&b)
 	}
+	if anyFew(r.Thresholds) {
+		b.WriteString("  * fewer than 30 records: one record moves the figure by more than 3 points; read it with its interval\n")
+	}
 
 	if tg := r.Target; tg != nil {
-		fmt.Fprintf(&b, "\ntarget precision %s\n", strconv.FormatFloat(tg.Precision, 'f', -1, 64))
+		how := "every higher threshold reaching it too"
+		if tg.Conservative {
+			how += "; the threshold's 95% interval above it (--conservative)"
+		}
+		fmt.Fprintf(&b, "\ntarget precision %s (%s)\n", strconv.FormatFloat(tg.Precision, 'f', -1, 64), how)
 		op := tg.Overall
 		if op.Reached {
-			fmt.Fprintf(&b, "  all labels: lowest threshold %s: precision %s, recall %s, %s of records tagged\n",
-				strconv.FormatFloat(op.Threshold, 'f', -1, 64), frac(op.Precision), frac(op.Recall), pct(op.Coverage))
+			fmt.Fprintf(&b, "  all labels: lowest threshold %s: precision %s %s over %d records%s, recall %s, %s of records tagged\n",
+				strconv.FormatFloat(op.Threshold, 'f', -1, 64), frac(op.Precision), interval(op.PrecisionCI), op.Kept, fewWord(op.Few), frac(op.Recall), pct(op.Coverage))
 			m := ""
 			if modelFlag != "" {
 				m = " -m " + modelFlag
@@ -691,7 +757,7 @@ func writeEvalText(w io.Writer, o *evalOutput, modelFlag string) error {
 				frac(op.Precision), strconv.FormatFloat(op.Threshold, 'f', -1, 64), frac(op.Recall))
 		}
 		t := table{indent: "  "}
-		t.add("label", "threshold", "precision", "recall", "tags kept")
+		t.add("label", "threshold", "precision", "95% interval", "records", "recall", "tags kept")
 		for _, l := range tg.PerLabel {
 			thr := strconv.FormatFloat(l.Threshold, 'f', -1, 64)
 			if !l.Reached {
@@ -700,7 +766,7 @@ func writeEvalText(w io.Writer, o *evalOutput, modelFlag string) error {
 					thr += ", best " + frac(l.Precision) + " at " + strconv.FormatFloat(l.Threshold, 'f', -1, 64)
 				}
 			}
-			t.add(l.Label, thr, frac(l.Precision), frac(l.Recall), pct(l.Coverage))
+			t.add(l.Label, thr, frac(l.Precision), interval(l.PrecisionCI), itoa(l.Kept)+few(l.Few), frac(l.Recall), pct(l.Coverage))
 		}
 		t.write(&b)
 	}

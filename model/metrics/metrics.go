@@ -164,13 +164,32 @@ type ThresholdRow struct {
 	Coverage  Fraction `json:"coverage"`
 	Kept      int      `json:"kept"`
 	Correct   int      `json:"correct"`
+	// Relevant is the count recall is taken over (all records overall,
+	// the label's support per label).
+	Relevant int `json:"relevant"`
+	// PrecisionCI and RecallCI are 95% Wilson intervals (see Wilson) over
+	// Kept and Relevant records.
+	PrecisionCI Interval `json:"precision_ci"`
+	RecallCI    Interval `json:"recall_ci"`
+	// Few is set when precision rests on fewer than FewRecords records.
+	Few bool `json:"few"`
+}
+
+// row fills a ThresholdRow from its counts.
+func row(threshold float64, right, kept, relevant, predicted int) ThresholdRow {
+	return ThresholdRow{Threshold: threshold, Precision: ratio(right, kept), Recall: ratio(right, relevant),
+		Coverage: ratio(kept, predicted), Kept: kept, Correct: right, Relevant: relevant,
+		PrecisionCI: Wilson(right, kept), RecallCI: Wilson(right, relevant), Few: kept < FewRecords}
 }
 
 // Target holds the lowest thresholds that reach a target precision.
 type Target struct {
-	Precision float64       `json:"precision"`
-	Overall   Operating     `json:"overall"`
-	PerLabel  []OperatingAt `json:"per_label"`
+	Precision float64 `json:"precision"`
+	// Conservative: the target is met by the lower end of precision's
+	// 95% interval (Options.Conservative).
+	Conservative bool          `json:"conservative"`
+	Overall      Operating     `json:"overall"`
+	PerLabel     []OperatingAt `json:"per_label"`
 }
 
 // OperatingAt is one label's operating point.
@@ -193,12 +212,19 @@ type Operating struct {
 	Recall    Fraction `json:"recall"`
 	Coverage  Fraction `json:"coverage"`
 	Kept      int      `json:"kept"`
+	// PrecisionCI is the 95% Wilson interval of Precision over Kept
+	// records; Few is set when Kept is under FewRecords.
+	PrecisionCI Interval `json:"precision_ci"`
+	Few         bool     `json:"few"`
 }
 
 // Options control Evaluate. The zero value asks for no target.
 type Options struct {
 	// TargetPrecision, when in (0, 1], fills Report.Target.
 	TargetPrecision float64
+	// Conservative asks that the lower end of precision's 95% interval,
+	// not precision itself, reach TargetPrecision.
+	Conservative bool
 }
 
 // Predict returns the index of the largest value of probs (the lowest
@@ -264,13 +290,13 @@ func Evaluate(labels []string, gold []int, probs [][]float32, opt Options) (*Rep
 	r.Calibration = Calibrate(gold, pred, conf, Bins)
 	r.Thresholds = ThresholdTables(labels, gold, pred, conf, Levels)
 	if t := opt.TargetPrecision; t > 0 && t <= 1 {
-		all, err := LowestThreshold(gold, pred, conf, -1, t)
+		all, err := LowestThreshold(gold, pred, conf, -1, t, opt.Conservative)
 		if err != nil {
 			return nil, err
 		}
-		r.Target = &Target{Precision: t, Overall: all}
+		r.Target = &Target{Precision: t, Conservative: opt.Conservative, Overall: all}
 		for c, l := range labels {
-			op, err := LowestThreshold(gold, pred, conf, c, t)
+			op, err := LowestThreshold(gold, pred, conf, c, t, opt.Conservative)
 			if err != nil {
 				return nil, err
 			}
@@ -408,8 +434,7 @@ func ThresholdTables(labels []string, gold, pred []int, conf []float64, levels [
 				}
 			}
 		}
-		t.Overall = append(t.Overall, ThresholdRow{Threshold: lv, Precision: ratio(right, kept),
-			Recall: ratio(right, len(gold)), Coverage: ratio(kept, len(gold)), Kept: kept, Correct: right})
+		t.Overall = append(t.Overall, row(lv, right, kept, len(gold), len(gold)))
 	}
 	for c, l := range labels {
 		lt := LabelThresholds{Label: l}
@@ -423,8 +448,7 @@ func ThresholdTables(labels []string, gold, pred []int, conf []float64, levels [
 					}
 				}
 			}
-			lt.Rows = append(lt.Rows, ThresholdRow{Threshold: lv, Precision: ratio(right, kept),
-				Recall: ratio(right, support[c]), Coverage: ratio(kept, predicted[c]), Kept: kept, Correct: right})
+			lt.Rows = append(lt.Rows, row(lv, right, kept, support[c], predicted[c]))
 		}
 		t.PerLabel = append(t.PerLabel, lt)
 	}
@@ -432,12 +456,20 @@ func ThresholdTables(labels []string, gold, pred []int, conf []float64, levels [
 }
 
 // LowestThreshold finds the lowest minimum confidence at which the kept
-// records reach precision target: over all labels when label is negative
-// (the figures of Thresholds.Overall), else for that label (those of
-// Thresholds.PerLabel). A record is kept when its confidence is >= the
-// threshold. Every distinct confidence is a candidate, not only Levels.
-// A NaN or infinite confidence is refused with ErrNotFinite.
-func LowestThreshold(gold, pred []int, conf []float64, label int, target float64) (Operating, error) {
+// records reach precision target and stay at or above it for every higher
+// threshold: over all labels when label is negative (the figures of
+// Thresholds.Overall), else for that label (those of Thresholds.PerLabel).
+// On small sets precision can fall as the threshold rises (a confident
+// mistake among few records); a user who picks "at least t" expects every
+// threshold above t to keep the target too, so the search walks down from
+// the highest confidence and stops at the first threshold that misses.
+// With conservative, the threshold must moreover have the lower end of
+// precision's 95% Wilson interval at or above target (the higher
+// thresholds, with fewer records, need only their precision to). A record is kept when its
+// confidence is >= the threshold; every distinct confidence is a
+// candidate, not only Levels. A NaN or infinite confidence is refused
+// with ErrNotFinite.
+func LowestThreshold(gold, pred []int, conf []float64, label int, target float64, conservative bool) (Operating, error) {
 	var idx []int
 	support := 0
 	for i := range gold {
@@ -463,6 +495,7 @@ func LowestThreshold(gold, pred []int, conf []float64, label int, target float64
 	var op, best Operating
 	bestPrec := -1.0
 	kept, right := 0, 0
+	holding := true // every higher threshold reached the target
 	for j := 0; j < len(idx); {
 		v := conf[idx[j]]
 		// The first record of a group is taken unconditionally, so j
@@ -478,24 +511,33 @@ func LowestThreshold(gold, pred []int, conf []float64, label int, target float64
 			lo = conf[idx[j]]
 		}
 		p := float64(right) / float64(kept)
+		ci := Wilson(right, kept)
 		cur := Operating{Threshold: shortestIn(lo, v), Precision: Fraction(p), Recall: ratio(right, support),
-			Coverage: ratio(kept, len(idx)), Kept: kept}
+			Coverage: ratio(kept, len(idx)), Kept: kept, PrecisionCI: ci, Few: kept < FewRecords}
 		if label < 0 {
 			cur.Coverage = ratio(kept, len(gold))
 		}
-		if p >= target {
+		if p < target {
+			holding = false
+		}
+		meets := p
+		if conservative {
+			meets = float64(ci.Low)
+		}
+		if holding && meets >= target {
 			cur.Reached = true
 			op = cur
 		}
-		if p >= bestPrec {
-			bestPrec, best = p, cur
+		if meets >= bestPrec {
+			bestPrec, best = meets, cur
 		}
 	}
 	if op.Reached {
 		return op, nil
 	}
 	if bestPrec < 0 {
-		return Operating{Precision: Fraction(math.NaN()), Recall: ratio(0, support), Coverage: Fraction(math.NaN())}, nil
+		return Operating{Precision: Fraction(math.NaN()), Recall: ratio(0, support), Coverage: Fraction(math.NaN()),
+			PrecisionCI: Wilson(0, 0)}, nil
 	}
 	return best, nil
 }

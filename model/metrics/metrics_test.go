@@ -233,23 +233,32 @@ func TestThresholds(t *testing.T) {
 	for _, c := range []struct {
 		label         int
 		target        float64
+		conservative  bool
 		reached       bool
 		thr           float64
 		kept          int
 		recall, cover float64
 	}{
-		// Lowest reaching 0.8 is 0.52; any threshold in (0.45, 0.52]
-		// keeps the same records, and 0.5 is the shortest.
-		{-1, 0.8, true, 0.5, 6, 5.0 / 7, 6.0 / 7},
-		// 5/6 < 0.84: only 0.98 alone; (0.9, 0.98] gives 0.98.
-		{-1, 0.84, true, 0.98, 1, 1.0 / 7, 1.0 / 7},
-		{1, 0.6, true, 0.5, 3, 1, 3.0 / 4},
-		// Never 0.7: the best, 2/3, from the lowest threshold giving it.
-		{1, 0.7, false, 0.5, 3, 1, 3.0 / 4},
+		// 0.8 is reached at 0.52 (5/6) but missed at 0.9 (1/2): a user
+		// who picks "at least t" must keep the target at every higher
+		// threshold, so only 0.98 alone qualifies; (0.9, 0.98] gives 0.98.
+		{-1, 0.8, false, true, 0.98, 1, 1.0 / 7, 1.0 / 7},
+		{-1, 0.84, false, true, 0.98, 1, 1.0 / 7, 1.0 / 7},
+		// 0.5 holds all the way down: every record, (0, 0.45] gives 0.4.
+		{-1, 0.5, false, true, 0.4, 7, 5.0 / 7, 1},
+		// Label b's most confident prediction is wrong: 0.6 is never held
+		// from the top; the best, 2/3, from the lowest threshold giving it.
+		{1, 0.6, false, false, 0.5, 3, 1, 3.0 / 4},
+		{1, 0.7, false, false, 0.5, 3, 1, 3.0 / 4},
 		// Every a prediction is right: (0, 0.5342] gives 0.5.
-		{0, 1, true, 0.5, 3, 3.0 / 5, 1},
+		{0, 1, false, true, 0.5, 3, 3.0 / 5, 1},
+		// Conservative: 3 of 3 right has a Wilson lower end of 0.438, so
+		// 0.5 is not reached; the best lower end is at 3 records. 0.4 is
+		// (1 of 1 has 0.207, but there only precision must hold).
+		{0, 0.5, true, false, 0.5, 3, 3.0 / 5, 1},
+		{0, 0.4, true, true, 0.5, 3, 3.0 / 5, 1},
 	} {
-		op, err := LowestThreshold(gold, pred, conf, c.label, c.target)
+		op, err := LowestThreshold(gold, pred, conf, c.label, c.target, c.conservative)
 		if err != nil {
 			t.Fatal(err)
 		}

@@ -62,7 +62,7 @@ func TestNonFiniteRefused(t *testing.T) {
 				hasBad = hasBad || !finite(v)
 			}
 			for _, label := range []int{-1, 0, 1} {
-				_, err := LowestThreshold(c.gold, pred, conf, label, 0.9)
+				_, err := LowestThreshold(c.gold, pred, conf, label, 0.9, false)
 				if hasBad != errors.Is(err, ErrNotFinite) {
 					t.Errorf("LowestThreshold label %d: %v (non-finite confidence: %v)", label, err, hasBad)
 				}
