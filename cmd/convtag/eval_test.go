@@ -341,3 +341,57 @@ func TestEvalFolds(t *testing.T) {
 		t.Errorf("text output:\n%s", out)
 	}
 }
+
+// TestEvalConservativeTarget: with --conservative the threshold is never
+// lower than without, its interval's lower end reaches the target when it
+// is reached, and every threshold of the table above the plain one keeps
+// the target (the envelope rule).
+func TestEvalConservativeTarget(t *testing.T) {
+	type op struct {
+		Reached     bool    `json:"reached"`
+		Threshold   float64 `json:"threshold"`
+		Precision   float64 `json:"precision"`
+		PrecisionCI struct {
+			Low float64 `json:"low"`
+		} `json:"precision_ci"`
+	}
+	type report struct { // the network's figures are at the top level
+		Target struct {
+			Overall op `json:"overall"`
+		} `json:"target"`
+		Thresholds struct {
+			Overall []struct {
+				Threshold float64  `json:"threshold"`
+				Precision *float64 `json:"precision"`
+			} `json:"overall"`
+		} `json:"thresholds"`
+	}
+	get := func(args ...string) report {
+		t.Helper()
+		code, out, errs := runCmd(t, "", append([]string{"eval", "--json", "-m", fixture(t), "--target-precision", "0.85"}, append(args, demoDev)...)...)
+		if code != exitOK {
+			t.Fatalf("exit %d: %s", code, errs)
+		}
+		var r report
+		if err := json.Unmarshal([]byte(out), &r); err != nil {
+			t.Fatal(err)
+		}
+		return r
+	}
+	plain, cons := get(), get("--conservative")
+	p, c := plain.Target.Overall, cons.Target.Overall
+	if !p.Reached {
+		t.Fatalf("0.85 not reached on the demo dev set: %+v", p)
+	}
+	if c.Reached && (c.Threshold < p.Threshold || c.PrecisionCI.Low < 0.85) {
+		t.Errorf("conservative %+v against plain %+v", c, p)
+	}
+	for _, row := range plain.Thresholds.Overall {
+		if row.Threshold >= p.Threshold && row.Precision != nil && *row.Precision < 0.85 {
+			t.Errorf("threshold %v above the target's %v has precision %v", row.Threshold, p.Threshold, *row.Precision)
+		}
+	}
+	if code, _, errs := runCmd(t, "", "eval", "-m", fixture(t), "--conservative", demoDev); code != exitUsage || !strings.Contains(errs, "--conservative needs --target-precision") {
+		t.Errorf("--conservative alone: exit %d, %s", code, errs)
+	}
+}
