@@ -5,6 +5,8 @@ import (
 	"strconv"
 	"strings"
 	"testing"
+
+	"convtag/model/metrics"
 )
 
 // TestBuiltinCautions: the README, tag --help and inspect of the built-in
@@ -71,5 +73,36 @@ func TestStatsCountsRecordsForReview(t *testing.T) {
 	}
 	if !strings.Contains(errs, "convtag: no words         1\n") {
 		t.Errorf("stats do not count the text with no words:\n%s", errs)
+	}
+}
+
+// TestEvalCautions: each caution fires on its own condition and not
+// otherwise. The figures are built from confusion matrices, through the
+// same metrics code eval uses.
+func TestEvalCautions(t *testing.T) {
+	report := func(conf [][]int) *metrics.Report {
+		r := &metrics.Report{Labels: []string{"a", "b"}, Confusion: conf}
+		r.PerLabel = metrics.PerLabel(conf, r.Labels)
+		return r
+	}
+	for _, c := range []struct {
+		name string
+		conf [][]int
+		want []string
+	}{
+		{"many records, even recall", [][]int{{950, 50}, {50, 950}}, nil},
+		{"few records", [][]int{{950, 50}, {2, 20}}, []string{"fewer than 30 records of b (22)"}},
+		{"uneven recall", [][]int{{990, 10}, {400, 600}}, []string{"recall ranges from 0.600 (b) to 0.990 (a)"}},
+		{"uncertain precision", [][]int{{5, 0}, {5, 995}}, []string{"fewer than 30 records of a (5)", "precision is uncertain", "recall ranges from"}},
+	} {
+		got := strings.Join(cautions(report(c.conf)), "\n")
+		for _, w := range c.want {
+			if !strings.Contains(got, w) {
+				t.Errorf("%s: cautions %q lack %q", c.name, got, w)
+			}
+		}
+		if len(c.want) == 0 && got != "" {
+			t.Errorf("%s: cautions %q, want none", c.name, got)
+		}
 	}
 }

@@ -575,6 +575,62 @@ func pct(x metrics.Fraction) string {
 
 func itoa(n int) string { return strconv.Itoa(n) }
 
+// Caution limits (rules of thumb, common practice rather than a standard):
+// a label with fewer than metrics.FewRecords records, a precision whose 95%
+// interval is wider than wideInterval, and labels whose recalls are more
+// than recallGap apart.
+const (
+	wideInterval = 0.25
+	recallGap    = 0.20
+)
+
+// cautions are the short warnings eval prints under the network's
+// per-label table: figures resting on few records, and a model that fails
+// some labels' records much more often than others'.
+func cautions(r *metrics.Report) []string {
+	var out, few, wide []string
+	for i, s := range r.PerLabel {
+		if s.Support < metrics.FewRecords {
+			few = append(few, fmt.Sprintf("%s (%d)", s.Label, s.Support))
+		}
+		tp := r.Confusion[i][i]
+		if ci := metrics.Wilson(tp, s.Predicted); ci.Low.Defined() && float64(ci.High-ci.Low) > wideInterval {
+			wide = append(wide, fmt.Sprintf("%s %s", s.Label, interval(ci)))
+		}
+	}
+	if len(few) > 0 {
+		out = append(out, "fewer than 30 records of "+capList(few)+": their figures move by more than 3 points per record")
+	}
+	if len(wide) > 0 {
+		out = append(out, "precision is uncertain (95% interval wider than 0.25) for "+capList(wide))
+	}
+	lo, hi := 0, 0
+	for i, s := range r.PerLabel {
+		if s.Support == 0 {
+			continue
+		}
+		if r.PerLabel[lo].Support == 0 || s.Recall < r.PerLabel[lo].Recall {
+			lo = i
+		}
+		if r.PerLabel[hi].Support == 0 || s.Recall > r.PerLabel[hi].Recall {
+			hi = i
+		}
+	}
+	if g := r.PerLabel[hi].Recall - r.PerLabel[lo].Recall; g > recallGap {
+		out = append(out, fmt.Sprintf("recall ranges from %s (%s) to %s (%s): the model misses some kinds of record far more often than others; check those before acting on their tags",
+			f3(r.PerLabel[lo].Recall), r.PerLabel[lo].Label, f3(r.PerLabel[hi].Recall), r.PerLabel[hi].Label))
+	}
+	return out
+}
+
+// capList joins items with commas, at most 8 of them.
+func capList(items []string) string {
+	if len(items) > 8 {
+		return strings.Join(items[:8], ", ") + fmt.Sprintf(" and %d more", len(items)-8)
+	}
+	return strings.Join(items, ", ")
+}
+
 // interval writes a 95% interval as [low,high] with two decimals.
 func interval(ci metrics.Interval) string {
 	if !ci.Low.Defined() || !ci.High.Defined() {
@@ -677,6 +733,9 @@ func writeEvalText(w io.Writer, o *evalOutput, modelFlag string) error {
 		t.write(&b)
 	}
 	perLabel("per label, network", r)
+	for _, c := range cautions(r) {
+		fmt.Fprintf(&b, "  caution: %s\n", c)
+	}
 	confusion("confusion, network", r)
 	if o.Baseline != nil {
 		perLabel("per label, "+baselineKind, o.Baseline.Report)
