@@ -93,7 +93,7 @@ func TestEvalCautions(t *testing.T) {
 		{"many records, even recall", [][]int{{950, 50}, {50, 950}}, nil},
 		{"few records", [][]int{{950, 50}, {2, 20}}, []string{"fewer than 30 records of b (22)"}},
 		{"uneven recall", [][]int{{990, 10}, {400, 600}}, []string{"recall ranges from 0.600 (b) to 0.990 (a)"}},
-		{"uncertain precision", [][]int{{5, 0}, {5, 995}}, []string{"fewer than 30 records of a (5)", "precision is uncertain", "recall ranges from"}},
+		{"uncertain precision", [][]int{{5, 0}, {5, 995}}, []string{"fewer than 30 records of a (5)", "for a [0.24,0.76]"}},
 	} {
 		got := strings.Join(cautions(report(c.conf)), "\n")
 		for _, w := range c.want {
