@@ -79,6 +79,12 @@ bigrams is trained on the same records, and both dev accuracies are printed
 at the end: if the baseline wins, the network is not earning its keep.
 The same data, flags, --seed and --jobs give a byte-identical model file.
 
+The model file holds every word seen in training and the baseline's word
+pairs, in plain bytes: names and rare words from people's messages can be
+read from it (URLs, e-mail addresses, @handles and numbers are replaced by
+placeholders first). Share it only where the training text may go (README,
+"What a model file reveals").
+
 The -o file is checked before any record is read: it must not be a
 directory or one of the input files, and its directory must take a new
 file. The model is written to a temporary file beside it and renamed into
