@@ -78,6 +78,20 @@ if [[ ! -s $LOG.zst ]]; then
 	zstd -q -f -T0 -3 "$LOG" -o "$LOG.zst.tmp" && mv "$LOG.zst.tmp" "$LOG.zst"
 fi
 BYTES=$(stat -c %s "$LOG")
+# The archive workload: the same records in six files, three gzip and
+# three zstd (as daily archives come), tagged into one -o out.jsonl.zst.
+export CONVTAG
+ARCH=$CACHE/archive-$N-$GENHASH
+if [[ ! -s $ARCH/part6.jsonl.zst ]]; then
+	mkdir -p "$ARCH"
+	split -n l/6 -d -a 1 "$LOG" "$ARCH/part"
+	for i in 0 1 2; do gzip -c -6 "$ARCH/part$i" >"$ARCH/part$((i + 1)).jsonl.gz"; done
+	for i in 3 4 5; do zstd -q -f -3 "$ARCH/part$i" -o "$ARCH/part$((i + 1)).jsonl.zst"; done
+	rm -f "$ARCH"/part[0-5]
+fi
+ARCHIVE=("$ARCH"/part1.jsonl.gz "$ARCH"/part2.jsonl.gz "$ARCH"/part3.jsonl.gz "$ARCH"/part4.jsonl.zst "$ARCH"/part5.jsonl.zst "$ARCH"/part6.jsonl.zst)
+# decode_archive: every archive file's records, in order, on stdout.
+decode_archive='for f in "$@"; do case $f in *.gz) gzip -dc "$f" ;; *) zstd -dc "$f" ;; esac; done'
 
 # measure NAME INPUT CMD...: best wall time of $REPEAT runs (bash's
 # EPOCHREALTIME, microseconds) and the largest peak RSS (GNU time %M, KiB).
@@ -116,6 +130,7 @@ measure cat plain cat "$LOG"
 measure cat zstd bash -c 'zstd -dc "$1"' _ "$LOG.zst"
 measure "jq -c ." plain jq -c . "$LOG"
 measure "jq -c ." zstd bash -c 'zstd -dc "$1" | jq -c .' _ "$LOG.zst"
+measure "jq -c ." archive bash -c "($decode_archive) | jq -c . | zstd -q -c" _ "${ARCHIVE[@]}"
 
 D300=$CACHE/model-d300-v50000-$GENHASH # + -f32/-f16.safetensors; delete to remake
 FIRST_BUILTIN=n/a FIRST_D300=""
@@ -124,6 +139,9 @@ if ((HAVE_TAG)); then
 		measure "convtag built-in" plain "$CONVTAG" tag -j "$JOBS" "$LOG"
 		measure "convtag built-in" zstd "$CONVTAG" tag -j "$JOBS" "$LOG.zst"
 		FIRST_BUILTIN=$(first_output "$CONVTAG" tag -j "$JOBS" "$LOG")
+		measure "convtag built-in" archive "$CONVTAG" tag -j "$JOBS" -o "$CACHE/out.jsonl.zst" "${ARCHIVE[@]}"
+		measure "convtag in a pipe" archive bash -c "($decode_archive) | \"\$CONVTAG\" tag -j $JOBS | zstd -q -c" _ "${ARCHIVE[@]}"
+		rm -f "$CACHE/out.jsonl.zst"
 	else
 		na "convtag built-in" plain "the built-in model does not tag yet"
 		na "convtag built-in" zstd "the built-in model does not tag yet"
@@ -173,26 +191,29 @@ fi
 # (4) table
 printf '\nconvtag benchmark: %d records, %.1f MB uncompressed, best of %d, -j %s, %s\n' \
 	"$N" "$(awk -v b="$BYTES" 'BEGIN{print b/1e6}')" "$REPEAT" "$JOBS" "$(date -u +%FT%TZ)"
-printf '%-18s %-6s %12s %9s %13s %7s %9s\n' tool input records/s MB/s "peak RSS MB" "cpu s" "vs jq"
-declare -A JQ
+printf '%-20s %-7s %12s %9s %13s %7s %6s %9s %11s\n' tool input records/s MB/s "peak RSS MB" "cpu s" cores "vs jq" "cpu vs jq"
+declare -A JQ JQCPU
 for row in "${RESULTS[@]}"; do
 	IFS='|' read -r name input secs rss cpu <<<"$row"
-	[[ $name == "jq -c ." ]] && JQ[$input]=$secs
+	[[ $name == "jq -c ." ]] && JQ[$input]=$secs JQCPU[$input]=$cpu
 done
 D300_RPS=""
 for row in "${RESULTS[@]}"; do
 	IFS='|' read -r name input secs rss cpu <<<"$row"
 	if [[ $secs == n/a ]]; then
-		printf '%-18s %-6s %12s %9s %13s %7s %9s\n' "$name" "$input" n/a n/a n/a n/a n/a
+		printf '%-20s %-7s %12s %9s %13s %7s %6s %9s %11s\n' "$name" "$input" n/a n/a n/a n/a n/a n/a n/a
 		continue
 	fi
-	awk -v n="$N" -v b="$BYTES" -v s="$secs" -v k="$rss" -v j="${JQ[$input]:-}" -v name="$name" -v inp="$input" -v c="$cpu" 'BEGIN{
+	awk -v n="$N" -v b="$BYTES" -v s="$secs" -v k="$rss" -v j="${JQ[$input]:-}" -v jc="${JQCPU[$input]:-}" -v name="$name" -v inp="$input" -v c="$cpu" 'BEGIN{
 		ratio = (j == "" ? "n/a" : sprintf("%.2fx", j / s))
-		printf "%-18s %-6s %12.0f %9.1f %13.1f %7s %9s\n", name, inp, n / s, b / s / 1e6, k / 1024, c, ratio }'
+		cratio = (jc == "" || c == 0 ? "n/a" : sprintf("%.2fx", c / jc))
+		printf "%-20s %-7s %12.0f %9.1f %13.1f %7s %6.2f %9s %11s\n", name, inp, n / s, b / s / 1e6, k / 1024, c, c / s, ratio, cratio }'
 	[[ $name == "convtag d=300 f16" && $input == plain ]] && D300_RPS=$(awk -v n="$N" -v s="$secs" 'BEGIN{printf "%.0f", n/s}')
 done
-printf '%-18s %-6s %12s %9s %13s %7s\n' "pytorch d=300" ids "$TORCH" - - "$TORCH_CPU"
+printf '%-20s %-7s %12s %9s %13s %7s\n' "pytorch d=300" ids "$TORCH" - - "$TORCH_CPU"
 printf '\non zstd input the cat row is `zstd -dc`, and jq reads from `zstd -dc |`; d=300 models: untrained, 50,000 words + 10,000 buckets, folded\n'
+printf 'archive: the records in 3 .jsonl.gz + 3 .jsonl.zst files, written as zstd (convtag -o out.jsonl.zst; jq and "convtag in a pipe": gzip/zstd -dc | ... | zstd -q -c)\n'
+printf 'cores: cpu s / wall s; cpu vs jq: CPU seconds per record against jq on the same input (lower is cheaper)\n'
 printf 'first output (s): built-in %s,%s\n' "$FIRST_BUILTIN" "${FIRST_D300:- d=300 n/a}"
 if [[ -n $D300_RPS && $TORCH != n/a ]]; then
 	awk -v a="$D300_RPS" -v b="$TORCH" 'BEGIN{printf "convtag d=300 f16 / pytorch d=300: %.1fx (sentences/s)\n", a / b}'
