@@ -1,7 +1,6 @@
 package stream
 
 import (
-	"bufio"
 	"bytes"
 	"encoding/json"
 	"errors"
@@ -116,14 +115,32 @@ func ReadLabelled(files []string, opt LabelledOptions) (*LabelledSet, error) {
 		opt.Report = 5
 	}
 	r := &labelReader{opt: opt, set: &LabelledSet{}, label: strings.Split(opt.LabelKey, ".")}
-	for _, k := range opt.TextKeys {
-		r.text = append(r.text, strings.Split(k, "."))
+	ropt := ReaderOptions{Format: InputJSONL, TextKeys: opt.TextKeys, Stdin: opt.Stdin}
+	if opt.Format == LabelledTSV {
+		ropt.Format = InputText
 	}
-	for _, name := range files {
-		if err := r.file(name); err != nil {
+	rd, err := OpenReader(files, ropt)
+	if err != nil {
+		return nil, err
+	}
+	defer rd.Close()
+	for {
+		rec, err := rd.Read()
+		var re *RecordError
+		switch {
+		case err == io.EOF:
+		case errors.As(err, &re):
+			r.problem(re)
+			continue
+		case err != nil:
 			return nil, err
+		default:
+			r.record(rec)
+			continue
 		}
+		break
 	}
+	r.set.Blank = int(rd.Blank())
 	if len(r.set.Records) == 0 {
 		return r.set, fmt.Errorf("%w in %s", ErrNoRecords, strings.Join(files, ", "))
 	}
@@ -133,63 +150,35 @@ func ReadLabelled(files []string, opt LabelledOptions) (*LabelledSet, error) {
 type labelReader struct {
 	opt     LabelledOptions
 	set     *LabelledSet
-	text    [][]string
 	label   []string
-	scan    scanner
 	scratch []byte
 }
 
-func (r *labelReader) file(name string) error {
-	in, err := openInput(name, r.opt.Stdin, nil)
-	if err != nil {
-		return &InputError{File: name, Err: err}
-	}
-	defer in.closer()
-	br := bufio.NewReaderSize(in.r, 64<<10)
-	var line int64
-	for {
-		b, err := br.ReadBytes('\n')
-		if len(b) > 0 {
-			line++
-			r.record(name, line, bytes.TrimRight(b, "\r\n"))
-		}
-		if err == io.EOF {
-			return nil
-		}
-		if err != nil {
-			return &InputError{File: name, Line: line, Err: err}
-		}
-	}
-}
-
-func (r *labelReader) problem(file string, line int64, err error) {
+func (r *labelReader) problem(e *RecordError) {
 	r.set.Skipped++
 	if len(r.set.Problems) < r.opt.Report {
-		r.set.Problems = append(r.set.Problems, &RecordError{File: file, Line: line, Err: err})
+		r.set.Problems = append(r.set.Problems, e)
 	}
 }
 
-func (r *labelReader) record(file string, line int64, b []byte) {
-	if len(bytes.TrimSpace(b)) == 0 {
-		r.set.Blank++
-		return
-	}
+func (r *labelReader) record(rec *Record) {
 	var text string
 	var labels []string
 	var err error
 	if r.opt.Format == LabelledTSV {
-		text, labels, err = r.tsv(b)
+		text, labels, err = r.tsv(rec.Raw)
 	} else {
-		text, labels, err = r.jsonl(b)
+		text = string(rec.Text)
+		labels, err = r.jsonLabels(rec.JSON)
 	}
 	if err != nil {
-		r.problem(file, line, err)
+		r.problem(&RecordError{File: rec.File, Line: rec.Line, Err: err})
 		return
 	}
 	if len(labels) > 1 {
 		r.set.Multi++
 	}
-	r.set.Records = append(r.set.Records, Labelled{Text: text, Labels: labels, File: file, Line: line})
+	r.set.Records = append(r.set.Records, Labelled{Text: text, Labels: labels, File: rec.File, Line: rec.Line})
 }
 
 func (r *labelReader) tsv(b []byte) (string, []string, error) {
@@ -218,41 +207,14 @@ func checkLabel(l string) error {
 	return nil
 }
 
-func (r *labelReader) jsonl(b []byte) (string, []string, error) {
-	if ok, e := r.scan.validObject(b); !ok {
-		return "", nil, fmt.Errorf("%w: %s at byte %d", ErrMalformed, e.msg, e.off+1)
-	}
-	var parts []string
-	for _, path := range r.text {
-		s, e, ok, scratch := findPath(b, 0, path, r.scratch)
-		r.scratch = scratch
-		if !ok {
-			continue
-		}
-		var v string
-		if json.Unmarshal(b[s:e], &v) != nil {
-			if string(b[s:e]) == "null" {
-				continue
-			}
-			return "", nil, fmt.Errorf("%w: %s", ErrNotString, strings.Join(path, "."))
-		}
-		if strings.TrimSpace(v) != "" {
-			parts = append(parts, v)
-		}
-	}
-	if len(parts) == 0 {
-		return "", nil, ErrNoText
-	}
-	s, e, ok, scratch := findPath(b, 0, r.label, r.scratch)
+// jsonLabels finds the label of a JSON record (a valid object).
+func (r *labelReader) jsonLabels(obj []byte) ([]string, error) {
+	s, e, ok, scratch := findPath(obj, skipSpace(obj, 0), r.label, r.scratch)
 	r.scratch = scratch
 	if !ok {
-		return "", nil, ErrNoLabel
+		return nil, ErrNoLabel
 	}
-	labels, err := decodeLabels(b[s:e])
-	if err != nil {
-		return "", nil, err
-	}
-	return strings.Join(parts, " "), labels, nil
+	return decodeLabels(obj[s:e])
 }
 
 // decodeLabels reads a label value: a string, a number (its spelling) or

@@ -1,0 +1,381 @@
+package stream
+
+import (
+	"bufio"
+	"bytes"
+	"errors"
+	"fmt"
+	"io"
+	"strings"
+)
+
+// This file holds the one record primitive every reader of records uses:
+// tag's workers (on their blocks), and Reader, on which ScanTexts (embed,
+// inspect --ngrams) and ReadLabelled (train, eval) are built. A line's
+// text is found by textFinder.find and nowhere else, so the commands agree
+// on which records have which text.
+
+// findKind is what find made of a line.
+type findKind uint8
+
+const (
+	// foundJSON: a JSON record with a text at one of the paths at least.
+	foundJSON findKind = iota
+	// foundLine: a line read as text; the text is the line itself.
+	foundLine
+	// foundBlank: an empty line, or one of spaces and tabs only.
+	foundBlank
+	// foundNoText: a valid JSON record where no path holds a value other
+	// than null.
+	foundNoText
+	// foundMalformed: not a valid JSON object where one was expected.
+	foundMalformed
+	// foundNotString: a path holds a number, boolean, object or an array
+	// that is no byte array, and no path holds a text.
+	foundNotString
+)
+
+// found is find's answer for one line.
+type found struct {
+	kind findKind
+	// lead is the length of a leading record separator (0x1E), 0 or 1; a
+	// JSON record's object is line[lead:].
+	lead int
+	// text is the record's text for foundJSON and foundLine: the line
+	// itself, or the finder's buffer, valid until the next find.
+	text []byte
+	// keyed: some path held a value other than null (for the wrong-key
+	// warning).
+	keyed bool
+	// For foundMalformed, the syntax error and its column (from 1); for
+	// foundNotString, the index of the (last) key holding no text and the
+	// first byte of its value.
+	syn      syntaxError
+	col      int
+	badPath  int
+	badValue byte
+}
+
+// textFinder finds the text of one line. Its zero value is not usable:
+// make one with newTextFinder. It is owned by one goroutine.
+type textFinder struct {
+	format InputFormat
+	keys   []string   // the text keys as given (for messages)
+	paths  [][]string // keys split at the dots
+	scan   scanner
+	key    []byte // findPath's scratch
+	text   []byte
+}
+
+// newTextFinder makes a finder for format with the text at keys (dotted
+// paths; "text" when empty). An empty key is an error.
+func newTextFinder(format InputFormat, keys []string) (*textFinder, error) {
+	f := &textFinder{format: format, keys: textKeysOrDefault(keys)}
+	for _, k := range f.keys {
+		if k == "" {
+			return nil, errors.New("stream: empty text key")
+		}
+		f.paths = append(f.paths, strings.Split(k, "."))
+	}
+	return f, nil
+}
+
+// find returns what line (without its terminator) holds. The rules:
+//
+//   - a line of spaces and tabs (or nothing) is blank;
+//   - under InputText every other line is text; under InputAuto a line is a
+//     JSON record when its first byte after spaces and tabs is '{' (after
+//     a leading record separator, 0x1E, as JSON text sequences have),
+//     except that a '{' line that is not valid JSON and does not begin like
+//     an object is text (braces in prose); under InputJSONL every line is a
+//     JSON record;
+//   - a JSON record's text is the strings at the paths, unescaped, joined
+//     with one space; an array of integers 0..255 is the bytes of a text
+//     (journalctl -o json writes non-UTF-8 values so); null or an absent
+//     path adds nothing; any other value adds nothing, and when no path
+//     holds a text the record is foundNotString;
+//   - a JSON record with no value at any path is foundNoText.
+//
+// A JSON record with a text that is empty or only spaces is foundJSON: what
+// such a text means is the caller's to decide.
+func (f *textFinder) find(line []byte) found {
+	if isBlank(line) {
+		return found{kind: foundBlank}
+	}
+	switch f.format {
+	case InputText:
+		return found{kind: foundLine, text: line}
+	case InputAuto:
+		if !looksJSON(line) {
+			return found{kind: foundLine, text: line}
+		}
+	}
+	lead := seqPrefix(line)
+	obj := line[lead:]
+	if ok, e := f.scan.validObject(obj); !ok {
+		if f.format == InputAuto && lead == 0 && !objectStart(obj) {
+			// Braces in prose ("{sigh} my card was declined"), not a
+			// broken record: a text line.
+			return found{kind: foundLine, text: line}
+		}
+		return found{kind: foundMalformed, lead: lead, syn: e, col: lead + e.off + 1}
+	}
+	f.text = f.text[:0]
+	r := found{kind: foundNoText, lead: lead, badPath: -1}
+	start := skipSpace(obj, 0)
+	for p, path := range f.paths {
+		s, e, ok, key := findPath(obj, start, path, f.key)
+		f.key = key
+		if !ok {
+			continue
+		}
+		sep := len(f.text)
+		if r.kind == foundJSON {
+			f.text = append(f.text, ' ')
+		}
+		switch obj[s] {
+		case '"':
+			f.text = appendUnescaped(f.text, obj[s+1:e-1])
+			r.kind = foundJSON
+			continue
+		case '[': // the journal's bytes of a text that is not UTF-8
+			var isBytes bool
+			if f.text, isBytes = appendByteArray(f.text, obj, s); isBytes {
+				r.kind = foundJSON
+				continue
+			}
+		}
+		f.text = f.text[:sep]
+		if obj[s] != 'n' { // null adds nothing
+			r.badPath, r.badValue = p, obj[s]
+		}
+	}
+	r.keyed = r.kind == foundJSON || r.badPath >= 0
+	switch {
+	case r.kind == foundJSON:
+		r.text = f.text
+	case r.badPath >= 0:
+		r.kind = foundNotString
+	}
+	return r
+}
+
+// err is the problem with a line find did not find a text in: nil for
+// foundJSON, foundLine and foundBlank.
+func (f *textFinder) err(r found) error {
+	switch r.kind {
+	case foundMalformed:
+		return fmt.Errorf("%w: %s at column %d", ErrMalformed, r.syn.msg, r.col)
+	case foundNotString:
+		return fmt.Errorf("%w: %q holds %s", ErrNotString, f.keys[r.badPath], kindName(r.badValue))
+	case foundNoText:
+		return ErrNoText
+	}
+	return nil
+}
+
+// ReaderOptions say how a Reader finds each record's text. The zero value
+// decides per line between JSON and text (InputAuto) and takes the text of
+// a JSON record from its "text" key.
+type ReaderOptions struct {
+	// Format and TextKeys are as in Options: the same rules as tag's.
+	Format   InputFormat
+	TextKeys []string
+	// MaxLine is the longest line read (DefaultMaxLine when 0); a longer
+	// one is an ErrTooLong record error.
+	MaxLine int
+	// Stdin is read for the file name "-" by OpenReader; nil means
+	// os.Stdin.
+	Stdin io.Reader
+}
+
+// Record is one record a Reader read. Its slices belong to the Reader and
+// are valid until the next call of Read.
+type Record struct {
+	File string // as given ("-" for standard input)
+	Line int64  // from 1 within File
+	// Raw is the line without its terminator ("\n" or "\r\n"), with a
+	// leading record separator if it had one.
+	Raw []byte
+	// JSON is the record's object (after a record separator) for a JSON
+	// record, nil for a text line.
+	JSON []byte
+	// Text is the record's text: never empty nor only white space.
+	Text []byte
+}
+
+// Reader reads records one at a time from one input or several in a row,
+// in the manner of encoding/csv's Reader: Read returns the next record
+// with text, a *RecordError for a record without (the next Read goes on
+// after it), or io.EOF after the last. Blank lines are no records; they
+// are counted (Blank). A Reader is not safe for concurrent use.
+type Reader struct {
+	opt     ReaderOptions
+	find    *textFinder
+	maxLine int
+	rec     Record
+	blank   int64
+	err     error // sticky: an input error or io.EOF
+
+	files []string // OpenReader's inputs still to open
+	multi bool     // made by OpenReader
+	cur   *input   // the input open now, when the Reader opened it
+	br    *bufio.Reader
+	line  []byte // a line longer than br's buffer
+}
+
+// NewReader returns a Reader of r, whose records' File is name. r is read
+// as it is: no decompression, no byte-order mark skipped.
+func NewReader(r io.Reader, name string, opt ReaderOptions) (*Reader, error) {
+	rd, err := newReader(opt)
+	if err != nil {
+		return nil, err
+	}
+	rd.rec.File = name
+	rd.br = bufio.NewReaderSize(r, 64<<10)
+	return rd, nil
+}
+
+// OpenReader returns a Reader of files ("-" is opt.Stdin), one after
+// another, each plain or gzip/zstd/bzip2 compressed (sniffed from its
+// first bytes) and with a leading byte-order mark skipped, as tag reads
+// them. A file that cannot be opened or read is an *InputError from Read,
+// which then stops. Close closes the file open at the time.
+func OpenReader(files []string, opt ReaderOptions) (*Reader, error) {
+	rd, err := newReader(opt)
+	if err != nil {
+		return nil, err
+	}
+	rd.files, rd.multi = files, true
+	return rd, nil
+}
+
+func newReader(opt ReaderOptions) (*Reader, error) {
+	f, err := newTextFinder(opt.Format, opt.TextKeys)
+	if err != nil {
+		return nil, err
+	}
+	return &Reader{opt: opt, find: f, maxLine: max(cmp0(opt.MaxLine, DefaultMaxLine), 1)}, nil
+}
+
+// Blank returns the number of blank lines read so far.
+func (r *Reader) Blank() int64 { return r.blank }
+
+// Close closes the input OpenReader opened and that is open now.
+func (r *Reader) Close() error {
+	if r.cur != nil {
+		r.cur.closer()
+		r.cur = nil
+	}
+	r.files, r.br = nil, nil
+	return nil
+}
+
+// Read returns the next record with text. See Reader.
+func (r *Reader) Read() (*Record, error) {
+	for r.err == nil {
+		if r.br == nil && !r.open() {
+			break
+		}
+		b, err := r.readLine()
+		if len(b) > 0 {
+			r.rec.Line++
+			if rec, rerr := r.record(b); rec != nil || rerr != nil {
+				if err != nil && err != io.EOF {
+					r.fail(err)
+				} else if err == io.EOF {
+					r.next()
+				}
+				return rec, rerr
+			}
+		}
+		switch {
+		case err == io.EOF:
+			r.next()
+		case err != nil:
+			r.fail(err)
+		}
+	}
+	return nil, r.err
+}
+
+// open opens the next of OpenReader's files, or ends the Reader.
+func (r *Reader) open() bool {
+	if len(r.files) == 0 {
+		r.err = io.EOF
+		return false
+	}
+	name := r.files[0]
+	r.files = r.files[1:]
+	r.rec.File, r.rec.Line = name, 0
+	in, err := openInput(name, r.opt.Stdin, nil)
+	if err != nil {
+		r.err = &InputError{File: name, Err: err}
+		return false
+	}
+	r.cur = in
+	r.br = bufio.NewReaderSize(in.r, 64<<10)
+	return true
+}
+
+// next ends the current input: OpenReader goes on with the next file.
+func (r *Reader) next() {
+	r.br = nil
+	if r.cur != nil {
+		r.cur.closer()
+		r.cur = nil
+	}
+	if !r.multi {
+		r.err = io.EOF
+	}
+}
+
+func (r *Reader) fail(err error) {
+	r.err = &InputError{File: r.rec.File, Line: r.rec.Line, Err: err}
+	r.Close()
+}
+
+// readLine returns the next line with its terminator, or what is left
+// before the end of the input (or an error).
+func (r *Reader) readLine() ([]byte, error) {
+	b, err := r.br.ReadSlice('\n')
+	if err != bufio.ErrBufferFull {
+		return b, err
+	}
+	r.line = append(r.line[:0], b...)
+	for err == bufio.ErrBufferFull {
+		b, err = r.br.ReadSlice('\n')
+		r.line = append(r.line, b...)
+	}
+	return r.line, err
+}
+
+// record makes a Record of one line, or a RecordError; both are nil for a
+// blank line.
+func (r *Reader) record(b []byte) (*Record, error) {
+	line, _, _ := nextLine(b, 0)
+	if len(line) > r.maxLine {
+		return nil, r.problem(fmt.Errorf("%w (over %d bytes)", ErrTooLong, r.maxLine))
+	}
+	f := r.find.find(line)
+	switch f.kind {
+	case foundBlank:
+		r.blank++
+		return nil, nil
+	case foundJSON, foundLine:
+	default:
+		return nil, r.problem(r.find.err(f))
+	}
+	if len(bytes.TrimSpace(f.text)) == 0 {
+		return nil, r.problem(ErrNoText)
+	}
+	r.rec.Raw, r.rec.Text, r.rec.JSON = line, f.text, nil
+	if f.kind == foundJSON {
+		r.rec.JSON = line[f.lead:]
+	}
+	return &r.rec, nil
+}
+
+func (r *Reader) problem(err error) error {
+	return &RecordError{File: r.rec.File, Line: r.rec.Line, Err: err}
+}
