@@ -47,13 +47,6 @@ type found struct {
 	// keyed: some path held a value other than null (for the wrong-key
 	// warning).
 	keyed bool
-	// For foundMalformed, the syntax error and its column (from 1); for
-	// foundNotString, the index of the (last) key holding no text and the
-	// first byte of its value.
-	syn      syntaxError
-	col      int
-	badPath  int
-	badValue byte
 }
 
 // textFinder finds the text of one line. Its zero value is not usable:
@@ -65,6 +58,14 @@ type textFinder struct {
 	scan   scanner
 	key    []byte // findPath's scratch
 	text   []byte
+	// What err needs, kept here to keep found small (it is returned for
+	// every line): for foundMalformed, the syntax error and its column
+	// (from 1); for foundNotString, the index of the (last) key holding no
+	// text and the first byte of its value.
+	syn      syntaxError
+	col      int
+	badPath  int
+	badValue byte
 }
 
 // newTextFinder makes a finder for format with the text at keys (dotted
@@ -118,10 +119,12 @@ func (f *textFinder) find(line []byte) found {
 			// broken record: a text line.
 			return found{kind: foundLine, text: line}
 		}
-		return found{kind: foundMalformed, lead: lead, syn: e, col: lead + e.off + 1}
+		f.syn, f.col = e, lead+e.off+1
+		return found{kind: foundMalformed, lead: lead}
 	}
 	f.text = f.text[:0]
-	r := found{kind: foundNoText, lead: lead, badPath: -1}
+	text := f.text[:0]
+	has, badPath := false, -1
 	start := skipSpace(obj, 0)
 	for p, path := range f.paths {
 		s, e, ok, key := findPath(obj, start, path, f.key)
@@ -129,45 +132,46 @@ func (f *textFinder) find(line []byte) found {
 		if !ok {
 			continue
 		}
-		sep := len(f.text)
-		if r.kind == foundJSON {
-			f.text = append(f.text, ' ')
+		sep := len(text)
+		if has {
+			text = append(text, ' ')
 		}
 		switch obj[s] {
 		case '"':
-			f.text = appendUnescaped(f.text, obj[s+1:e-1])
-			r.kind = foundJSON
+			text = appendUnescaped(text, obj[s+1:e-1])
+			has = true
 			continue
 		case '[': // the journal's bytes of a text that is not UTF-8
 			var isBytes bool
-			if f.text, isBytes = appendByteArray(f.text, obj, s); isBytes {
-				r.kind = foundJSON
+			if text, isBytes = appendByteArray(text, obj, s); isBytes {
+				has = true
 				continue
 			}
 		}
-		f.text = f.text[:sep]
+		text = text[:sep]
 		if obj[s] != 'n' { // null adds nothing
-			r.badPath, r.badValue = p, obj[s]
+			badPath, f.badValue = p, obj[s]
 		}
 	}
-	r.keyed = r.kind == foundJSON || r.badPath >= 0
+	f.text = text
 	switch {
-	case r.kind == foundJSON:
-		r.text = f.text
-	case r.badPath >= 0:
-		r.kind = foundNotString
+	case has:
+		return found{kind: foundJSON, lead: lead, text: text, keyed: true}
+	case badPath >= 0:
+		f.badPath = badPath
+		return found{kind: foundNotString, lead: lead, keyed: true}
 	}
-	return r
+	return found{kind: foundNoText, lead: lead}
 }
 
-// err is the problem with a line find did not find a text in: nil for
-// foundJSON, foundLine and foundBlank.
+// err is the problem with the line of the last find, r, when it found no
+// text: nil for foundJSON, foundLine and foundBlank.
 func (f *textFinder) err(r found) error {
 	switch r.kind {
 	case foundMalformed:
-		return fmt.Errorf("%w: %s at column %d", ErrMalformed, r.syn.msg, r.col)
+		return fmt.Errorf("%w: %s at column %d", ErrMalformed, f.syn.msg, f.col)
 	case foundNotString:
-		return fmt.Errorf("%w: %q holds %s", ErrNotString, f.keys[r.badPath], kindName(r.badValue))
+		return fmt.Errorf("%w: %q holds %s", ErrNotString, f.keys[f.badPath], kindName(f.badValue))
 	case foundNoText:
 		return ErrNoText
 	}

@@ -12,7 +12,7 @@ type worker struct {
 	ts     *taggerState
 	sc     Scorer
 	wc     WordCounter // sc, when it can count words; else nil
-	find   *textFinder
+	find   textFinder
 	sp     splicer
 	key    []byte // the key watch's scratch
 	fields []field
@@ -26,7 +26,7 @@ type worker struct {
 func newWorker(c *config) *worker {
 	// newConfig made one already: the keys are good.
 	f, _ := newTextFinder(c.o.Format, c.textKeys)
-	w := &worker{cfg: c, find: f, passOK: c.selects("")}
+	w := &worker{cfg: c, find: *f, passOK: c.selects("")}
 	w.fields = append(w.fields, c.tagKey, c.confKey)
 	if c.o.Scores {
 		w.fields = append(w.fields, c.scoresKey)
@@ -105,7 +105,7 @@ func (w *worker) record(b *block, line, term []byte) {
 	case foundLine:
 		w.textRecord(b, line, term)
 	default:
-		w.jsonRecord(b, line, term, r)
+		w.jsonRecord(b, line, term, &r)
 	}
 }
 
@@ -140,10 +140,10 @@ func (w *worker) problem(b *block, line, term []byte, err error) {
 }
 
 // jsonRecord tags, passes or rejects a JSON record, as find saw it.
-func (w *worker) jsonRecord(b *block, line, term []byte, r found) {
+func (w *worker) jsonRecord(b *block, line, term []byte, r *found) {
 	if r.kind == foundMalformed {
 		b.n.malformed++
-		w.problem(b, line, term, w.find.err(r))
+		w.problem(b, line, term, w.find.err(*r))
 		return
 	}
 	// A JSON text sequence's record separator stays in the record, before
@@ -155,7 +155,7 @@ func (w *worker) jsonRecord(b *block, line, term []byte, r found) {
 	switch r.kind {
 	case foundNotString:
 		b.n.notString++
-		w.problem(b, line, term, w.find.err(r))
+		w.problem(b, line, term, w.find.err(*r))
 		return
 	case foundNoText:
 		b.n.noText++
