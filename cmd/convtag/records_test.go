@@ -239,4 +239,3 @@ func diffKeys(a, b map[string]any) []string {
 	}
 	return d
 }
-
