@@ -14,6 +14,7 @@ import (
 type config struct {
 	o                          Options
 	textKeys                   []string // Options.TextKeys or the default
+	sep                        byte     // CSV or TSV separator; 0 for lines
 	tagKey, confKey            field    // names and encoded keys; values unused
 	scoresKey, topKey, whyKey  field
 	unsure                     string
@@ -36,6 +37,10 @@ func newConfig(o Options) (*config, error) {
 		return nil, err
 	}
 	c.textKeys = textKeysOrDefault(o.TextKeys)
+	c.sep = csvSep(o.Format)
+	if c.sep != 0 && (o.Scores || o.Top > 0 || o.Why) {
+		return nil, errors.New("stream: scores, top and why are for JSON output, not CSV or TSV")
+	}
 	mk := func(name, def string) field {
 		if name == "" {
 			name = def

@@ -19,8 +19,9 @@ import (
 type findKind uint8
 
 const (
-	// foundJSON: a JSON record with a text at one of the paths at least.
-	foundJSON findKind = iota
+	// foundRecord: a JSON record with a text at one of the paths at least,
+	// or a CSV or TSV record (findRow).
+	foundRecord findKind = iota
 	// foundLine: a line read as text; the text is the line itself.
 	foundLine
 	// foundBlank: an empty line, or one of spaces and tabs only.
@@ -41,7 +42,7 @@ type found struct {
 	// lead is the length of a leading record separator (0x1E), 0 or 1; a
 	// JSON record's object is line[lead:].
 	lead int
-	// text is the record's text for foundJSON and foundLine: the line
+	// text is the record's text for foundRecord and foundLine: the line
 	// itself, or the finder's buffer, valid until the next find.
 	text []byte
 	// keyed: some path held a value other than null (for the wrong-key
@@ -66,12 +67,17 @@ type textFinder struct {
 	col      int
 	badPath  int
 	badValue byte
+	// For CSV and TSV: the field splitter, and why findRow's record is
+	// malformed.
+	csv    csvParser
+	rowErr error
 }
 
 // newTextFinder makes a finder for format with the text at keys (dotted
 // paths; "text" when empty). An empty key is an error.
 func newTextFinder(format InputFormat, keys []string) (*textFinder, error) {
 	f := &textFinder{format: format, keys: textKeysOrDefault(keys)}
+	f.csv.sep = csvSep(format)
 	for _, k := range f.keys {
 		if k == "" {
 			return nil, errors.New("stream: empty text key")
@@ -97,7 +103,7 @@ func newTextFinder(format InputFormat, keys []string) (*textFinder, error) {
 //     holds a text the record is foundNotString;
 //   - a JSON record with no value at any path is foundNoText.
 //
-// A JSON record with a text that is empty or only spaces is foundJSON: what
+// A JSON record with a text that is empty or only spaces is foundRecord: what
 // such a text means is the caller's to decide.
 func (f *textFinder) find(line []byte) found {
 	if isBlank(line) {
@@ -156,7 +162,7 @@ func (f *textFinder) find(line []byte) found {
 	f.text = text
 	switch {
 	case has:
-		return found{kind: foundJSON, lead: lead, text: text, keyed: true}
+		return found{kind: foundRecord, lead: lead, text: text, keyed: true}
 	case badPath >= 0:
 		f.badPath = badPath
 		return found{kind: foundNotString, lead: lead, keyed: true}
@@ -165,10 +171,13 @@ func (f *textFinder) find(line []byte) found {
 }
 
 // err is the problem with the line of the last find, r, when it found no
-// text: nil for foundJSON, foundLine and foundBlank.
+// text: nil for foundRecord, foundLine and foundBlank.
 func (f *textFinder) err(r found) error {
 	switch r.kind {
 	case foundMalformed:
+		if f.csv.sep != 0 {
+			return f.rowErr
+		}
 		return fmt.Errorf("%w: %s at column %d", ErrMalformed, f.syn.msg, f.col)
 	case foundNotString:
 		return fmt.Errorf("%w: %q holds %s", ErrNotString, f.keys[f.badPath], kindName(f.badValue))
@@ -366,7 +375,7 @@ func (r *Reader) record(b []byte) (*Record, error) {
 	case foundBlank:
 		r.blank++
 		return nil, nil
-	case foundJSON, foundLine:
+	case foundRecord, foundLine:
 	default:
 		return nil, r.problem(r.find.err(f))
 	}
@@ -374,7 +383,7 @@ func (r *Reader) record(b []byte) (*Record, error) {
 		return nil, r.problem(ErrNoText)
 	}
 	r.rec.Raw, r.rec.Text, r.rec.JSON = line, f.text, nil
-	if f.kind == foundJSON {
+	if f.kind == foundRecord {
 		r.rec.JSON = line[f.lead:]
 	}
 	return &r.rec, nil

@@ -86,7 +86,7 @@ func Run(ctx context.Context, opts Options, inputs []string, stdin io.Reader, st
 	work := make(chan *block, cfg.jobs)
 	kw := &keyWatch{warn: opts.Warn, paths: textKeysOrDefault(opts.TextKeys), done: &cfg.keyDone}
 	c := &cutter{cfg: cfg, chunks: chunks, chunkPool: chunkPool, free: free, work: work,
-		stop: ctx.Done(), abort: abortCtx.Done(), tagger: first, held: startHeld, gen: startGen}
+		stop: ctx.Done(), abort: abortCtx.Done(), tagger: first, held: startHeld, gen: startGen, hdrFile: -1}
 	var wg sync.WaitGroup
 	wg.Go(c.run)
 
@@ -126,6 +126,13 @@ func Run(ctx context.Context, opts Options, inputs []string, stdin io.Reader, st
 			if opts.OnError != nil {
 				opts.OnError(&RecordError{File: name, Line: lineBase + e.line + 1, Err: e.err})
 			}
+		}
+		if b.hdrErr != nil {
+			// Only the records before the header are in b.out: blank lines.
+			if err := out.write(b.out); err != nil {
+				return err
+			}
+			return &HeaderError{File: name, Line: lineBase + b.hdrLine + 1, Err: b.hdrErr}
 		}
 		lineBase += b.lines
 		if err := out.write(b.out); err != nil {

@@ -54,6 +54,10 @@ func (w *worker) process(b *block) {
 		clear(b.tags)
 	}
 	if b.raw {
+		if b.header && b.hdr.err != nil {
+			b.hdrErr = b.hdr.err
+			return
+		}
 		if b.rawFirst {
 			b.n.records++
 			b.n.tooLong++
@@ -75,6 +79,10 @@ func (w *worker) process(b *block) {
 		case b.rawFirst:
 			b.n.dropped++
 		}
+		return
+	}
+	if w.cfg.sep != 0 {
+		w.rows(b)
 		return
 	}
 	for i := 0; i < len(b.in); {
@@ -107,6 +115,66 @@ func (w *worker) record(b *block, line, term []byte) {
 	default:
 		w.jsonRecord(b, line, term, &r)
 	}
+}
+
+// rows tags the CSV or TSV records of b: the header gets the names of the
+// two columns added, every other record its tag and confidence, after its
+// last field and before its line break; the bytes before stay as they
+// were.
+func (w *worker) rows(b *block) {
+	sep := w.cfg.sep
+	header := b.header
+	for i := 0; i < len(b.in); {
+		rec, term, next, inner := nextCSV(b.in, i, sep)
+		i = next
+		b.n.records++
+		if len(term) == 2 {
+			b.n.crlf++
+		}
+		switch {
+		case len(rec) == 0:
+			b.n.blank++
+			w.pass(b, rec, term)
+		case header:
+			header = false
+			if b.hdr.err != nil {
+				b.hdrErr, b.hdrLine = b.hdr.err, b.lines
+				return
+			}
+			b.out = append(b.out, rec...)
+			b.out = appendCSVField(append(b.out, sep), []byte(w.cfg.tagKey.name), sep)
+			b.out = appendCSVField(append(b.out, sep), []byte(w.cfg.confKey.name), sep)
+			b.out = append(b.out, term...)
+			b.n.written++
+		case len(rec) > w.cfg.maxLine:
+			b.n.tooLong++
+			w.problem(b, rec, term, w.tooLong())
+		default:
+			w.row(b, rec, term)
+		}
+		b.lines += 1 + int64(inner)
+	}
+}
+
+// row tags one CSV or TSV data record.
+func (w *worker) row(b *block, rec, term []byte) {
+	r := w.find.findRow(rec, b.hdr)
+	if r.kind == foundMalformed {
+		b.n.malformed++
+		w.problem(b, rec, term, w.find.err(r))
+		return
+	}
+	tag, ok := w.score(b, r.text)
+	if !ok {
+		return
+	}
+	w.setFields(tag)
+	sep := w.cfg.sep
+	b.out = append(b.out, rec...)
+	b.out = appendCSVField(append(b.out, sep), []byte(w.ts.labels[tag]), sep)
+	b.out = append(append(b.out, sep), w.fields[1].val...)
+	b.out = append(b.out, term...)
+	b.n.written++
 }
 
 func (w *worker) tooLong() error {
