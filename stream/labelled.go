@@ -14,8 +14,15 @@ import (
 // Labelled-record formats.
 const (
 	LabelledJSONL = "jsonl" // one JSON object a line
-	LabelledTSV   = "tsv"   // label<TAB>text
+	LabelledCSV   = "csv"   // RFC 4180 with a header row naming the columns
+	LabelledTSV   = "tsv"   // the same with tabs between the fields
+	// LabelledTabText is label<TAB>text lines without a header: the rest
+	// of the line after the first tab is the text, taken as it is.
+	LabelledTabText = "label-tab-text"
 )
+
+// LabelledFormats lists the formats ReadLabelled reads.
+var LabelledFormats = []string{LabelledJSONL, LabelledCSV, LabelledTSV, LabelledTabText}
 
 // Problems with labelled records. A LabelledSet's Problems are
 // RecordErrors that unwrap to one of these (or to ErrMalformed).
@@ -24,6 +31,9 @@ var (
 	ErrNoLabel  = errors.New("stream: record has no label")
 	ErrBadLabel = errors.New("stream: label is not a string or an array of strings")
 	ErrNoTab    = errors.New("stream: no tab between label and text")
+	// ErrHeaderLine: a label-tab-text line reads "label<TAB>text", a
+	// header; it is not trained on.
+	ErrHeaderLine = errors.New("stream: a header line, not a record (for a file with a header use --format tsv)")
 	// ErrLabelControl: a label holds a control character (Unicode general
 	// category Cc: TAB, CR, LF, NUL, ESC, ...), which would break a TSV
 	// output line or a terminal.
@@ -36,8 +46,13 @@ var (
 // LabelledOptions say how to read labelled records. The zero value reads
 // JSON Lines with the text under "text" and the label under "label".
 type LabelledOptions struct {
-	// Format is LabelledJSONL (the default, "") or LabelledTSV.
+	// Format is one of LabelledFormats; "" is LabelledJSONL.
 	Format string
+	// TextColumns and LabelColumn name the columns of CSV and TSV input
+	// ({"text"} and "label" when empty); several text columns are joined
+	// with a space.
+	TextColumns []string
+	LabelColumn string
 	// TextKeys are dotted paths to the text (array elements by decimal
 	// index, as for tag's keys); the values found are joined with a space.
 	// Empty means {"text"}.
@@ -102,8 +117,11 @@ func ReadLabelled(files []string, opt LabelledOptions) (*LabelledSet, error) {
 	if opt.Format == "" {
 		opt.Format = LabelledJSONL
 	}
-	if opt.Format != LabelledJSONL && opt.Format != LabelledTSV {
-		return nil, fmt.Errorf("%w %q (want %s or %s)", ErrUnknownForm, opt.Format, LabelledJSONL, LabelledTSV)
+	if !slices.Contains(LabelledFormats, opt.Format) {
+		return nil, fmt.Errorf("%w %q (want %s)", ErrUnknownForm, opt.Format, strings.Join(LabelledFormats, ", "))
+	}
+	if opt.LabelColumn == "" {
+		opt.LabelColumn = "label"
 	}
 	if len(opt.TextKeys) == 0 {
 		opt.TextKeys = []string{"text"}
@@ -116,8 +134,14 @@ func ReadLabelled(files []string, opt LabelledOptions) (*LabelledSet, error) {
 	}
 	r := &labelReader{opt: opt, set: &LabelledSet{}, label: strings.Split(opt.LabelKey, ".")}
 	ropt := ReaderOptions{Format: InputJSONL, TextKeys: opt.TextKeys, Stdin: opt.Stdin}
-	if opt.Format == LabelledTSV {
+	switch opt.Format {
+	case LabelledTabText:
 		ropt.Format = InputText
+	case LabelledCSV, LabelledTSV:
+		ropt.Format, ropt.TextKeys, ropt.LabelColumn = InputCSV, opt.TextColumns, opt.LabelColumn
+		if opt.Format == LabelledTSV {
+			ropt.Format = InputTSV
+		}
 	}
 	rd, err := OpenReader(files, ropt)
 	if err != nil {
@@ -165,9 +189,16 @@ func (r *labelReader) record(rec *Record) {
 	var text string
 	var labels []string
 	var err error
-	if r.opt.Format == LabelledTSV {
+	switch r.opt.Format {
+	case LabelledTabText:
 		text, labels, err = r.tsv(rec.Raw)
-	} else {
+		if err == nil && rec.Line == 1 && labels[0] == "label" && strings.TrimSpace(text) == "text" {
+			err = ErrHeaderLine
+		}
+	case LabelledCSV, LabelledTSV:
+		text = string(rec.Text)
+		labels, err = columnLabel(rec.Label)
+	default:
 		text = string(rec.Text)
 		labels, err = r.jsonLabels(rec.JSON)
 	}
@@ -196,6 +227,18 @@ func (r *labelReader) tsv(b []byte) (string, []string, error) {
 		return "", nil, err
 	}
 	return string(text), []string{l}, nil
+}
+
+// columnLabel is the label of a CSV or TSV field, trimmed of spaces.
+func columnLabel(f []byte) ([]string, error) {
+	l := string(bytes.TrimSpace(f))
+	if l == "" {
+		return nil, ErrNoLabel
+	}
+	if err := checkLabel(l); err != nil {
+		return nil, err
+	}
+	return []string{l}, nil
 }
 
 // checkLabel rejects a label (already trimmed of spaces) that holds a

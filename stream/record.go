@@ -191,9 +191,13 @@ func (f *textFinder) err(r found) error {
 // decides per line between JSON and text (InputAuto) and takes the text of
 // a JSON record from its "text" key.
 type ReaderOptions struct {
-	// Format and TextKeys are as in Options: the same rules as tag's.
+	// Format and TextKeys are as in Options: the same rules as tag's. For
+	// InputCSV and InputTSV the TextKeys are column names.
 	Format   InputFormat
 	TextKeys []string
+	// LabelColumn, for CSV and TSV, is a column every header must have;
+	// its field is each Record's Label.
+	LabelColumn string
 	// MaxLine is the longest line read (DefaultMaxLine when 0); a longer
 	// one is an ErrTooLong record error.
 	MaxLine int
@@ -215,6 +219,10 @@ type Record struct {
 	JSON []byte
 	// Text is the record's text: never empty nor only white space.
 	Text []byte
+	// Fields are a CSV or TSV record's fields, unquoted; Label is the
+	// field of ReaderOptions.LabelColumn (nil without one).
+	Fields [][]byte
+	Label  []byte
 }
 
 // Reader reads records one at a time from one input or several in a row,
@@ -235,6 +243,11 @@ type Reader struct {
 	cur   *input   // the input open now, when the Reader opened it
 	br    *bufio.Reader
 	line  []byte // a line longer than br's buffer
+	lines int64  // lines of the current input read so far
+
+	sep  byte       // CSV or TSV separator; 0 for lines
+	hdr  *csvHeader // the current input's header, once read
+	rows []byte     // a CSV record of several lines
 }
 
 // NewReader returns a Reader of r, whose records' File is name. r is read
@@ -268,7 +281,7 @@ func newReader(opt ReaderOptions) (*Reader, error) {
 	if err != nil {
 		return nil, err
 	}
-	return &Reader{opt: opt, find: f, maxLine: max(cmp0(opt.MaxLine, DefaultMaxLine), 1)}, nil
+	return &Reader{opt: opt, find: f, maxLine: max(cmp0(opt.MaxLine, DefaultMaxLine), 1), sep: csvSep(opt.Format)}, nil
 }
 
 // Blank returns the number of blank lines read so far.
@@ -290,14 +303,20 @@ func (r *Reader) Read() (*Record, error) {
 		if r.br == nil && !r.open() {
 			break
 		}
-		b, err := r.readLine()
+		b, err := r.readRecord()
 		if len(b) > 0 {
-			r.rec.Line++
+			r.rec.Line = r.lines + 1
+			r.lines += int64(bytes.Count(b, []byte{'\n'}))
+			if b[len(b)-1] != '\n' {
+				r.lines++
+			}
 			if rec, rerr := r.record(b); rec != nil || rerr != nil {
-				if err != nil && err != io.EOF {
-					r.fail(err)
-				} else if err == io.EOF {
+				switch {
+				case r.err != nil: // a header error stopped the Reader
+				case err == io.EOF:
 					r.next()
+				case err != nil:
+					r.fail(err)
 				}
 				return rec, rerr
 			}
@@ -320,7 +339,7 @@ func (r *Reader) open() bool {
 	}
 	name := r.files[0]
 	r.files = r.files[1:]
-	r.rec.File, r.rec.Line = name, 0
+	r.rec.File, r.rec.Line, r.lines, r.hdr = name, 0, 0, nil
 	in, err := openInput(name, r.opt.Stdin, nil)
 	if err != nil {
 		r.err = &InputError{File: name, Err: err}
@@ -344,7 +363,7 @@ func (r *Reader) next() {
 }
 
 func (r *Reader) fail(err error) {
-	r.err = &InputError{File: r.rec.File, Line: r.rec.Line, Err: err}
+	r.err = &InputError{File: r.rec.File, Line: r.lines, Err: err}
 	r.Close()
 }
 
@@ -363,9 +382,31 @@ func (r *Reader) readLine() ([]byte, error) {
 	return r.line, err
 }
 
+// readRecord returns the next record's lines: one line, or for CSV and
+// TSV as many as a quoted line break makes it span.
+func (r *Reader) readRecord() ([]byte, error) {
+	b, err := r.readLine()
+	if r.sep == 0 || err != nil {
+		return b, err
+	}
+	if _, s := csvCut(b, csvFieldStart, r.sep); s != csvFieldStart {
+		r.rows = append(r.rows[:0], b...)
+		for s != csvFieldStart && err == nil {
+			b, err = r.readLine()
+			r.rows = append(r.rows, b...)
+			_, s = csvCut(b, s, r.sep)
+		}
+		return r.rows, err
+	}
+	return b, nil
+}
+
 // record makes a Record of one line, or a RecordError; both are nil for a
 // blank line.
 func (r *Reader) record(b []byte) (*Record, error) {
+	if r.sep != 0 {
+		return r.row(b)
+	}
 	line, _, _ := nextLine(b, 0)
 	if len(line) > r.maxLine {
 		return nil, r.problem(fmt.Errorf("%w (over %d bytes)", ErrTooLong, r.maxLine))
@@ -385,6 +426,44 @@ func (r *Reader) record(b []byte) (*Record, error) {
 	r.rec.Raw, r.rec.Text, r.rec.JSON = line, f.text, nil
 	if f.kind == foundRecord {
 		r.rec.JSON = line[f.lead:]
+	}
+	return &r.rec, nil
+}
+
+// row is record for CSV and TSV: the first record of an input is its
+// header (a HeaderError stops the Reader), the others rows under it.
+func (r *Reader) row(b []byte) (*Record, error) {
+	rec, _, _, _ := nextCSV(b, 0, r.sep)
+	switch {
+	case len(rec) == 0:
+		r.blank++
+		return nil, nil
+	case r.hdr == nil:
+		if len(rec) > r.maxLine {
+			r.hdr = &csvHeader{err: fmt.Errorf("%w (over %d bytes)", ErrTooLong, r.maxLine)}
+		} else {
+			r.hdr = parseHeader(rec, r.sep, r.find.keys, r.opt.LabelColumn)
+		}
+		if r.hdr.err != nil {
+			err := &HeaderError{File: r.rec.File, Line: r.rec.Line, Err: r.hdr.err}
+			r.Close()
+			r.err = err
+			return nil, err
+		}
+		return nil, nil
+	case len(rec) > r.maxLine:
+		return nil, r.problem(fmt.Errorf("%w (over %d bytes)", ErrTooLong, r.maxLine))
+	}
+	f := r.find.findRow(rec, r.hdr)
+	if f.kind == foundMalformed {
+		return nil, r.problem(r.find.err(f))
+	}
+	if len(bytes.TrimSpace(f.text)) == 0 {
+		return nil, r.problem(ErrNoText)
+	}
+	r.rec.Raw, r.rec.Text, r.rec.JSON, r.rec.Fields, r.rec.Label = rec, f.text, nil, r.find.csv.fields, nil
+	if r.hdr.label >= 0 {
+		r.rec.Label = r.find.csv.fields[r.hdr.label]
 	}
 	return &r.rec, nil
 }
