@@ -30,8 +30,8 @@ func init() { commands = append(commands, newEvalCmd) }
 const baselineKind = "naive Bayes"
 
 type evalFlags struct {
-	model, format, labelKey, plots, plotFormat, baselineTrain string
-	textKeys                                                  []string
+	model, plots, plotFormat, baselineTrain string
+	labelledFlags
 	asJSON, noBaseline                                        bool
 	target                                                    float64
 	folds                                                     int
@@ -68,7 +68,7 @@ figures. Records with several labels are scored on the first.
 		Example: `  convtag eval -m ferry.safetensors testdata/demo/dev.jsonl
   convtag eval -m ferry.safetensors --target-precision 0.95 --plots plots/ dev.jsonl
   convtag eval -m ferry.safetensors --json dev.jsonl | jq .macro_f1
-  convtag eval --folds 10 --epochs 10 --format tsv sentences.tsv`,
+  convtag eval --folds 10 --epochs 10 --format label-tab-text sentences.txt`,
 		Args: cobra.ArbitraryArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
 			f.train.dimSet = cmd.Flags().Changed("vector-size")
@@ -83,9 +83,7 @@ figures. Records with several labels are scored on the first.
 	}
 	fl := c.Flags()
 	fl.StringVarP(&f.model, "model", "m", "", "model file (default: the built-in model)")
-	fl.StringArrayVar(&f.textKeys, "text-key", []string{"text"}, "dotted path of the text in a JSON record; repeat to join several")
-	fl.StringVar(&f.labelKey, "label-key", "label", "dotted path of the label (a string or an array of strings)")
-	fl.StringVar(&f.format, "format", stream.LabelledJSONL, "input format: jsonl or tsv (label<TAB>text)")
+	f.labelledFlags.add(fl)
 	fl.BoolVar(&f.asJSON, "json", false, "print the figures as one JSON object")
 	fl.Float64Var(&f.target, "target-precision", 0, "find the lowest confidence threshold whose kept tags reach this precision")
 	fl.StringVar(&f.plots, "plots", "", "write the figures as images into this directory")
@@ -122,8 +120,8 @@ func (f *evalFlags) check(cmd *cobra.Command, args []string) error {
 	if len(args) == 0 {
 		return usageErr("convtag eval -m MODEL FILE...", "eval: no labelled input files")
 	}
-	if f.format != stream.LabelledJSONL && f.format != stream.LabelledTSV {
-		return usageErr("--format jsonl or --format tsv", "eval: unknown --format %q", f.format)
+	if err := f.labelledFlags.check("eval"); err != nil {
+		return err
 	}
 	if f.target != 0 && !(f.target > 0 && f.target <= 1) {
 		return usageErr("--target-precision 0.9", "eval: --target-precision %v is not in (0, 1]", f.target)
@@ -162,7 +160,7 @@ func (f *evalFlags) check(cmd *cobra.Command, args []string) error {
 // labelled reads labelled records for eval and reports the skipped ones,
 // each problem on a line of its own with file and line, then the count.
 func (f *evalFlags) labelled(a *app, files []string) (*stream.LabelledSet, error) {
-	set, err := stream.ReadLabelled(files, stream.LabelledOptions{Format: f.format, TextKeys: f.textKeys, LabelKey: f.labelKey, Stdin: a.stdin})
+	set, err := stream.ReadLabelled(files, f.options(a))
 	if set != nil {
 		for _, p := range set.Problems {
 			fmt.Fprintf(a.stderr, "convtag: %s\n", p)
@@ -176,7 +174,11 @@ func (f *evalFlags) labelled(a *app, files []string) (*stream.LabelledSet, error
 	}
 	if err != nil {
 		var ie *stream.InputError
-		if errors.As(err, &ie) {
+		var he *stream.HeaderError
+		switch {
+		case errors.As(err, &he):
+			return nil, headerErr(err, true)
+		case errors.As(err, &ie):
 			return nil, withCode(exitFailure, err)
 		}
 		return nil, withCode(exitFailure, fmt.Errorf("eval: %w", err))

@@ -165,7 +165,7 @@ func TestCommandsAgreeOnRecords(t *testing.T) {
 		train := []string{"train", "-q", "-j", "1", "--seed", "3", "--epochs", "2", "--vector-size", "8", "--filters", "4", "--dev-fraction", "0.5", "--no-fold"}
 		mA, mB := filepath.Join(dir, "odd.safetensors"), filepath.Join(dir, "plain.safetensors")
 		_, errs := mustRun(t, append(append(train, "-o", mA, oddPath), keys...)...)
-		mustRun(t, append(train, "-o", mB, "--format", "tsv", tsvPath)...)
+		mustRun(t, append(train, "-o", mB, "--format", "label-tab-text", tsvPath)...)
 		if b := badLines(errs); !slices.Equal(b, wantBad) {
 			t.Errorf("train named lines %v, want %v: %s", b, wantBad, errs)
 		}
@@ -177,7 +177,7 @@ func TestCommandsAgreeOnRecords(t *testing.T) {
 	})
 	t.Run("eval", func(t *testing.T) {
 		out, errs := mustRun(t, append([]string{"eval", "--json", "-m", evalModel, oddPath}, keys...)...)
-		ref, _ := mustRun(t, "eval", "--json", "--format", "tsv", "-m", evalModel, tsvPath)
+		ref, _ := mustRun(t, "eval", "--json", "--format", "label-tab-text", "-m", evalModel, tsvPath)
 		if b := badLines(errs); !slices.Equal(b, wantBad) {
 			t.Errorf("eval named lines %v, want %v: %s", b, wantBad, errs)
 		}

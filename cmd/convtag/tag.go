@@ -66,7 +66,7 @@ const maxShownProblems = 20
 func newTagCmd(a *app) *cobra.Command {
 	var (
 		modelPath, format, emit, output, compress, rejects, progress string
-		textKeys, keep, drop                                         []string
+		textKeys, textColumns, keep, drop                            []string
 		o                                                            stream.Options
 		strict, showStats                                            bool
 		why                                                          int
@@ -132,7 +132,9 @@ a same-size overwrite would switch the model in the middle of a block.
 			if err := checkTagFlags(&o, format, emit, compress, progress, output, why, textKeys); err != nil {
 				return err
 			}
-			o.TextKeys = textKeys
+			if err := tagColumns(&o, textKeys, textColumns, why); err != nil {
+				return err
+			}
 			o.Keep, o.Drop = splitTags(keep), splitTags(drop)
 			o.Output = output
 			if output == "" || output == "-" {
@@ -260,14 +262,19 @@ a same-size overwrite would switch the model in the middle of a block.
 			if left != "" {
 				err = fmt.Errorf("%w; %s", err, left)
 			}
+			var he *stream.HeaderError
+			if errors.As(err, &he) {
+				return headerErr(err, false)
+			}
 			return withCode(exitFailure, err)
 		},
 	}
 	f := c.Flags()
 	f.StringVarP(&modelPath, "model", "m", "", "model file (default: the built-in model)")
-	f.StringVar(&format, "format", "auto", "input kind: auto (a line starting with '{' is JSON), jsonl or text")
+	f.StringVar(&format, "format", "auto", "input kind: auto (a line starting with '{' is JSON), jsonl, text, or csv or tsv (with a header row)")
 	f.StringArrayVarP(&textKeys, "text-key", "k", nil, "dotted path of the text in a JSON record; repeat to join several with a space (default text)")
-	f.StringVar(&o.TagKey, "tag-key", "tag", "key of the added tag")
+	f.StringArrayVar(&textColumns, "text-column", nil, "csv/tsv: header name of the text column; repeat to join several with a space (default text)")
+	f.StringVar(&o.TagKey, "tag-key", "tag", "key of the added tag (for csv/tsv: the name of the added column)")
 	f.StringVar(&o.ConfidenceKey, "confidence-key", "confidence", "key of the added confidence (rounded to 4 decimals)")
 	f.BoolVar(&o.Scores, "scores", false, `add every label's probability as an object under "scores" (JSON output)`)
 	f.IntVar(&o.Top, "top", 0, `add the N best labels, best first, as an array under "top" (JSON output)`)
@@ -303,7 +310,7 @@ const (
 func checkTagFlags(o *stream.Options, format, emit, compress, progress, output string, why int, textKeys []string) error {
 	var err error
 	if o.Format, err = stream.ParseFormat(format); err != nil {
-		return usageErr("convtag tag --format auto|jsonl|text", "--format: %v", err)
+		return usageErr("convtag tag --format auto|jsonl|text|csv|tsv", "--format: %v", err)
 	}
 	if o.Emit, err = stream.ParseEmit(emit); err != nil {
 		return usageErr("convtag tag --emit tsv|jsonl", "--emit: %v", err)
