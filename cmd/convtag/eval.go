@@ -32,10 +32,10 @@ const baselineKind = "naive Bayes"
 type evalFlags struct {
 	model, plots, plotFormat, baselineTrain string
 	labelledFlags
-	asJSON, noBaseline                                        bool
-	target                                                    float64
-	folds                                                     int
-	train                                                     trainFlags // for --folds
+	asJSON, noBaseline bool
+	target             float64
+	folds              int
+	train              trainFlags // for --folds
 }
 
 func newEvalCmd(a *app) *cobra.Command {

@@ -85,4 +85,3 @@ func tagColumns(o *stream.Options, textKeys, textColumns []string, why int) erro
 	o.TextKeys = textColumns
 	return nil
 }
-

@@ -40,13 +40,13 @@ const (
 type trainFlags struct {
 	output, dev, vectors, classWeights, optimizer string
 	labelledFlags
-	devFraction, lr                                                 float64
-	dim, filters, epochs, patience, batch, jobs, minCount, buckets  int
-	hidden, maxWords                                                int
-	widths                                                          []int
-	seed                                                            uint64
-	freeze, noFold, foldHalf, quiet                                 bool
-	dimSet                                                          bool
+	devFraction, lr                                                float64
+	dim, filters, epochs, patience, batch, jobs, minCount, buckets int
+	hidden, maxWords                                               int
+	widths                                                         []int
+	seed                                                           uint64
+	freeze, noFold, foldHalf, quiet                                bool
+	dimSet                                                         bool
 }
 
 func newTrainCmd(a *app) *cobra.Command {
