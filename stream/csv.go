@@ -90,7 +90,8 @@ func csvCutFirst(data []byte, s csvState, sep byte, first bool) (int, csvState) 
 // nextCSV returns the record that starts at b[i], as nextLine does for
 // lines: its bytes without the final line break, that line break ("\n",
 // "\r\n", or empty at the end of b), the offset of the next record and the
-// number of line breaks inside the record.
+// number of line breaks inside the record. A record without a final line
+// break (the end of b) that ends in CR has that CR as its terminator.
 func nextCSV(b []byte, i int, sep byte) (rec, term []byte, next int, inner int) {
 	s := csvFieldStart
 	j := i
@@ -101,6 +102,7 @@ func nextCSV(b []byte, i int, sep byte) (rec, term []byte, next int, inner int) 
 			if s == csvQuoted {
 				q := bytes.IndexByte(b[k:], '"')
 				if q < 0 {
+					inner += bytes.Count(b[k:], []byte{'\n'})
 					k = len(b)
 					break
 				}
@@ -131,6 +133,10 @@ func nextCSV(b []byte, i int, sep byte) (rec, term []byte, next int, inner int) 
 			}
 		}
 		if k >= len(b) {
+			// As encoding/csv does, a CR at the very end is no content.
+			if len(b) > i && b[len(b)-1] == '\r' {
+				return b[i : len(b)-1], b[len(b)-1:], len(b), inner
+			}
 			return b[i:], nil, len(b), inner
 		}
 		end := k
