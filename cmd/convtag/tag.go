@@ -93,6 +93,15 @@ writes a message that is not valid UTF-8, is tagged on those bytes; a record
 starting with the record separator 0x1E (journalctl -o json-seq) is JSON, and
 the separator is kept.
 
+--format csv and --format tsv read RFC 4180 records (TSV: tab-separated,
+the same quoting) after a header row; the text is in the --text-column
+columns (default text). Each record keeps its bytes and gets two fields
+appended, the tag and the confidence, named by --tag-key and
+--confidence-key in the header. A quoted field may hold line breaks. A
+header without the text column, with a name twice, or with the tag or
+confidence column already is an error (exit 2); a record with the wrong
+number of fields passes through unchanged and is counted.
+
 Every record read gives one record written, unless --keep or --drop leaves
 it out. Records that cannot be tagged pass through unchanged and are counted
 (or go to the --rejects file): malformed JSON, a text key holding a number,
