@@ -2,7 +2,6 @@ package stream
 
 import (
 	"bytes"
-	"errors"
 	"fmt"
 	"time"
 )
@@ -147,18 +146,23 @@ func (c *cutter) firstBreak(data []byte) int {
 	return k
 }
 
-// header notes, on the first block of each CSV or TSV input, that its
-// first record is the header, and stamps every block with its input's
+// header notes, on the first block of each CSV or TSV input with a
+// record in it, that its first record is the header, and stamps every block with its input's
 // header.
 func (c *cutter) header(b *block) {
-	if b.file != c.hdrFile && len(b.in) > 0 {
-		c.hdrFile = b.file
-		b.header = true
-		c.hdr = c.parseHeader(b)
+	if b.file != c.hdrFile {
+		// A block of blank lines only (shipped when a live input paused
+		// before its header came) leaves the header to a later block.
+		c.hdr = nil
+		if h := c.parseHeader(b); h != nil {
+			c.hdrFile, c.hdr, b.header = b.file, h, true
+		}
 	}
 	b.hdr = c.hdr
 }
 
+// parseHeader parses the first record of b, or returns nil when b holds
+// none (only blank lines, or nothing).
 func (c *cutter) parseHeader(b *block) *csvHeader {
 	if b.raw {
 		return &csvHeader{err: fmt.Errorf("%w (over %d bytes)", ErrTooLong, c.cfg.maxLine)}
@@ -176,7 +180,7 @@ func (c *cutter) parseHeader(b *block) *csvHeader {
 		}
 		i = next
 	}
-	return &csvHeader{err: errors.New("no header")}
+	return nil
 }
 
 func (c *cutter) take() *block {

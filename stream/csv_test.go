@@ -378,3 +378,16 @@ func TestReadLabelledCSV(t *testing.T) {
 		t.Errorf("label-tab-text header: %v %+v", err, set)
 	}
 }
+
+// TestCSVBlankBeforeHeader: blank lines before the header may come in a
+// block of their own (tiny blocks here, a pause in a live input in use);
+// the header is then the first record of a later block.
+func TestCSVBlankBeforeHeader(t *testing.T) {
+	want, _, errs := runString(t, Options{Format: InputCSV, Jobs: 1}, csvInput)
+	for _, bs := range []int{1, 2, 3} {
+		got, _, errs2 := runString(t, Options{Format: InputCSV, Jobs: 1, BlockSize: bs}, "\n\r\n"+csvInput)
+		if got != "\n\r\n"+want || len(errs2) != len(errs) {
+			t.Errorf("--batch %d: %q, errors %v", bs, got, errs2)
+		}
+	}
+}
