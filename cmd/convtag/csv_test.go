@@ -155,6 +155,17 @@ func TestTrainEvalCSV(t *testing.T) {
 		t.Errorf("models trained on CSV/TSV tag differently from one trained on JSON Lines")
 	}
 
+	// Flags the format would ignore are usage errors.
+	for _, args := range [][]string{
+		{"train", "-o", filepath.Join(dir, "z.safetensors"), "--format", "csv", "--text-key", "body", csvPath},
+		{"eval", "-m", evalModel, "--format", "tsv", "--label-key", "queue", tsvPath},
+		{"train", "-o", filepath.Join(dir, "z.safetensors"), "--text-column", "body", jlPath},
+		{"eval", "-m", evalModel, "--format", "label-tab-text", "--label-column", "queue", jlPath},
+	} {
+		if code, _, errs := runCmd(t, "", args...); code != exitUsage || !strings.Contains(errs, "try: ") {
+			t.Errorf("%v: exit %d: %s", args, code, errs)
+		}
+	}
 	// A header that lacks the columns is a usage error naming file and line.
 	code, _, errs := runCmd(t, "", "train", "-o", filepath.Join(dir, "x.safetensors"), "--format", "csv", csvPath)
 	if code != exitUsage || !strings.Contains(errs, csvPath+`:1: header: no such column: "text"`) || !strings.Contains(errs, "label-tab-text") {

@@ -72,6 +72,7 @@ figures. Records with several labels are scored on the first.
 		Args: cobra.ArbitraryArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
 			f.train.dimSet = cmd.Flags().Changed("vector-size")
+			f.noteChanged(cmd.Flags())
 			if err := f.check(cmd, args); err != nil {
 				return err
 			}

@@ -15,6 +15,13 @@ import (
 type labelledFlags struct {
 	format, labelKey, labelColumn string
 	textKeys, textColumns         []string
+	keysSet, columnsSet           bool // --text-key/--label-key, --text-column/--label-column given
+}
+
+// noteChanged records which of the key and column flags were given.
+func (f *labelledFlags) noteChanged(fl *pflag.FlagSet) {
+	f.keysSet = fl.Changed("text-key") || fl.Changed("label-key")
+	f.columnsSet = fl.Changed("text-column") || fl.Changed("label-column")
 }
 
 func (f *labelledFlags) add(fl *pflag.FlagSet) {
@@ -25,10 +32,18 @@ func (f *labelledFlags) add(fl *pflag.FlagSet) {
 	fl.StringVar(&f.labelColumn, "label-column", "label", "csv/tsv: header name of the label column")
 }
 
-// check returns the usage error for a format we do not read.
+// check returns the usage error for a format we do not read, or for key
+// or column flags the format has no use for (they would be ignored).
 func (f *labelledFlags) check(cmd string) error {
 	if !slices.Contains(stream.LabelledFormats, f.format) {
 		return usageErr("--format "+strings.Join(stream.LabelledFormats, "|"), "%s: unknown --format %q", cmd, f.format)
+	}
+	columns := f.format == stream.LabelledCSV || f.format == stream.LabelledTSV
+	switch {
+	case columns && f.keysSet:
+		return usageErr("--format "+f.format+" --text-column NAME --label-column NAME", "%s: --text-key and --label-key are for JSON Lines; --format %s takes --text-column and --label-column", cmd, f.format)
+	case !columns && f.columnsSet:
+		return usageErr("--format csv --text-column NAME", "%s: --text-column and --label-column are for --format csv or tsv", cmd)
 	}
 	return nil
 }

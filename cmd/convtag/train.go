@@ -88,6 +88,7 @@ The same data, flags, --seed and --jobs give a byte-identical model file.
 		Args: cobra.ArbitraryArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
 			f.dimSet = cmd.Flags().Changed("vector-size")
+			f.noteChanged(cmd.Flags())
 			return runTrain(a, &f, args)
 		},
 	}
