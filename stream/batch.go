@@ -2,6 +2,7 @@ package stream
 
 import (
 	"bytes"
+	"fmt"
 	"time"
 )
 
@@ -60,7 +61,15 @@ type block struct {
 	tags     []int64 // per label, then unsure
 	errs     []lineErr
 	fault    *FaultError // the Tagger's memory faulted: the run ends before this block
-	kn       keyNote     // text keys seen, while Options.Warn waits for a decision
+
+	// CSV and TSV: the header of the block's input, and whether the block
+	// starts that input (its first record is the header). A header that
+	// cannot be used ends the run: hdrErr at the header's line hdrLine.
+	hdr     *csvHeader
+	header  bool
+	hdrErr  error
+	hdrLine int64
+	kn      keyNote // text keys seen, while Options.Warn waits for a decision
 }
 
 func (b *block) reset() {
@@ -96,6 +105,82 @@ type cutter struct {
 	held    *heldTagger // the Switch's Tagger behind tagger, if any
 	stopped bool        // ended by stop or abort, not by the end of input
 	since   time.Time   // when cur got its first whole line
+
+	// CSV and TSV: the quote state at the end of the bytes cut so far, and
+	// the header of input hdrFile.
+	cst     csvState
+	hdr     *csvHeader
+	hdrFile int
+}
+
+// lastBreak returns the offset of the last record boundary in data, which
+// continues the input cut so far: the last newline, or for CSV and TSV the
+// last newline outside quotes.
+func (c *cutter) lastBreak(data []byte) int {
+	if c.cfg.sep == 0 {
+		return bytes.LastIndexByte(data, '\n')
+	}
+	k, s := csvCut(data, c.cst, c.cfg.sep)
+	c.cst = s
+	return k
+}
+
+// lastBreakIn is lastBreak for bytes that start at a record boundary and
+// were scanned before: the state is left alone.
+func (c *cutter) lastBreakIn(data []byte) int {
+	if c.cfg.sep == 0 {
+		return bytes.LastIndexByte(data, '\n')
+	}
+	k, _ := csvCut(data, csvFieldStart, c.cfg.sep)
+	return k
+}
+
+// firstBreak returns the offset of the first record boundary in data,
+// which continues an overlong record, or -1.
+func (c *cutter) firstBreak(data []byte) int {
+	if c.cfg.sep == 0 {
+		return bytes.IndexByte(data, '\n')
+	}
+	k, s := csvCutFirst(data, c.cst, c.cfg.sep, true)
+	c.cst = s
+	return k
+}
+
+// header notes, on the first block of each CSV or TSV input with a
+// record in it, that its first record is the header, and stamps every block with its input's
+// header.
+func (c *cutter) header(b *block) {
+	if b.file != c.hdrFile {
+		// A block of blank lines only (shipped when a live input paused
+		// before its header came) leaves the header to a later block.
+		c.hdr = nil
+		if h := c.parseHeader(b); h != nil {
+			c.hdrFile, c.hdr, b.header = b.file, h, true
+		}
+	}
+	b.hdr = c.hdr
+}
+
+// parseHeader parses the first record of b, or returns nil when b holds
+// none (only blank lines, or nothing).
+func (c *cutter) parseHeader(b *block) *csvHeader {
+	if b.raw {
+		return &csvHeader{err: fmt.Errorf("%w (over %d bytes)", ErrTooLong, c.cfg.maxLine)}
+	}
+	for i := 0; i < len(b.in); {
+		rec, _, next, _ := nextCSV(b.in, i, c.cfg.sep)
+		if len(rec) > 0 {
+			h := parseHeader(rec, c.cfg.sep, c.cfg.textKeys, "")
+			for _, k := range []string{c.cfg.tagKey.name, c.cfg.confKey.name} {
+				if _, dup := h.names[k]; dup && h.err == nil {
+					h.err = fmt.Errorf("%w: %q, which tag adds (choose another name for it)", ErrDupColumn, k)
+				}
+			}
+			return h
+		}
+		i = next
+	}
+	return nil
 }
 
 func (c *cutter) take() *block {
@@ -128,6 +213,9 @@ func (c *cutter) send(b *block) bool {
 		}
 	}
 	b.tagger = c.tagger
+	if c.cfg.sep != 0 {
+		c.header(b)
+	}
 	select {
 	case c.work <- b:
 		return true
@@ -154,7 +242,7 @@ func (c *cutter) ship(cur *block, k int) *block {
 	}
 	next.file = cur.file
 	next.in = append(next.in, cur.in[k:]...)
-	next.lastNL = bytes.LastIndexByte(next.in, '\n') // the ramp-up cuts before the last newline
+	next.lastNL = c.lastBreakIn(next.in) // the ramp-up cuts before the last boundary
 	cur.in = cur.in[:k]
 	if !c.send(cur) {
 		return nil
@@ -262,7 +350,7 @@ func (c *cutter) add(cur *block, data []byte, long bool) (*block, bool) {
 	for len(data) > 0 {
 		if long {
 			piece := data
-			nl := bytes.IndexByte(data, '\n')
+			nl := c.firstBreak(data)
 			if nl >= 0 {
 				piece, long = data[:nl+1], false
 			}
@@ -274,7 +362,7 @@ func (c *cutter) add(cur *block, data []byte, long bool) (*block, bool) {
 		}
 		n := len(cur.in)
 		cur.in = append(cur.in, data...)
-		if k := bytes.LastIndexByte(data, '\n'); k >= 0 {
+		if k := c.lastBreak(data); k >= 0 {
 			if cur.lastNL < 0 {
 				c.since = time.Now()
 			}
@@ -287,7 +375,7 @@ func (c *cutter) add(cur *block, data []byte, long bool) (*block, bool) {
 				if lim := c.limit(); k > lim {
 					// Cut at the last newline within the limit, so that the
 					// ramp-up of the first blocks holds for big reads too.
-					if j := bytes.LastIndexByte(cur.in[:lim], '\n'); j >= 0 {
+					if j := c.lastBreakIn(cur.in[:lim]); j >= 0 {
 						k = j + 1
 					}
 				}
@@ -331,6 +419,7 @@ func (c *cutter) sendRaw(file int, piece []byte, first, end bool) bool {
 // the next input starts a new record; a failed input keeps only its whole
 // lines and carries the error in an empty block after them.
 func (c *cutter) endInput(cur *block, ch chunk, long bool) (*block, bool) {
+	c.cst = csvFieldStart // the next input starts afresh
 	if long {
 		if !c.sendRaw(cur.file, []byte{'\n'}, false, true) {
 			return nil, false

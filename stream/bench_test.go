@@ -107,3 +107,21 @@ func BenchmarkPipeline(b *testing.B) {
 		})
 	}
 }
+
+// BenchmarkWorker tags one block of JSON records on this goroutine: the
+// worker's per-record path (split, find the text, score, splice) without
+// the pipeline's goroutines around it.
+func BenchmarkWorker(b *testing.B) {
+	cfg, err := newConfig(Options{Tagger: nullTagger{}})
+	if err != nil {
+		b.Fatal(err)
+	}
+	w := newWorker(cfg)
+	blk := &block{in: benchBlock, tagger: newTaggerState(nullTagger{}, cfg)}
+	b.SetBytes(int64(len(benchBlock)))
+	b.ReportAllocs()
+	for b.Loop() {
+		blk.out, blk.lines, blk.n = blk.out[:0], 0, counts{}
+		w.process(blk)
+	}
+}

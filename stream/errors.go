@@ -45,6 +45,22 @@ func bare(err error) string {
 
 func (e *RecordError) Unwrap() error { return e.Err }
 
+// HeaderError is a CSV or TSV header that cannot be used: a column named
+// twice, a text (or label) column it lacks, or a header that does not
+// parse. No record of its input is read: Run ends after the records
+// before it (other inputs' records), and a Reader stops.
+type HeaderError struct {
+	File string
+	Line int64
+	Err  error
+}
+
+func (e *HeaderError) Error() string {
+	return fmt.Sprintf("%s:%d: header: %s", e.File, e.Line, bare(e.Err))
+}
+
+func (e *HeaderError) Unwrap() error { return e.Err }
+
 // InputError is a problem with one input as a whole: it could not be opened,
 // or it ended early or was corrupt after Line complete lines. Run goes on with
 // the next input and returns the first InputError at the end.

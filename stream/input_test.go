@@ -53,13 +53,13 @@ func TestReadLabelledRejectsBadLabels(t *testing.T) {
 		{"json empty in array", "", `{"text":"fare","label":["ok",""]}`, ErrEmptyLabel, `-:2: empty label in the array (element 2)`},
 		{"json blank in array", "", `{"text":"fare","label":[" ","ok"]}`, ErrEmptyLabel, `-:2: empty label in the array (element 1)`},
 		{"json empty", "", `{"text":"fare","label":""}`, ErrNoLabel, `-:2: record has no label`},
-		{"tsv CR inside", LabelledTSV, "a\rb\tfare", ErrLabelControl, `-:2: label has a control character: "a\rb"`},
-		{"tsv ESC", LabelledTSV, "\x1b[31mred\tfare", ErrLabelControl, `-:2: label has a control character: "\x1b[31mred"`},
-		{"tsv empty", LabelledTSV, "\tfare", ErrNoLabel, `-:2: record has no label`},
+		{"tsv CR inside", LabelledTabText, "a\rb\tfare", ErrLabelControl, `-:2: label has a control character: "a\rb"`},
+		{"tsv ESC", LabelledTabText, "\x1b[31mred\tfare", ErrLabelControl, `-:2: label has a control character: "\x1b[31mred"`},
+		{"tsv empty", LabelledTabText, "\tfare", ErrNoLabel, `-:2: record has no label`},
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			good := `{"text":"fine","label":"ok"}`
-			if c.format == LabelledTSV {
+			if c.format == LabelledTabText {
 				good = "ok\tfine"
 			}
 			set, err := ReadLabelled([]string{"-"}, LabelledOptions{Format: c.format, Stdin: strings.NewReader(good + "\n" + c.in + "\n")})

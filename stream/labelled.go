@@ -1,7 +1,6 @@
 package stream
 
 import (
-	"bufio"
 	"bytes"
 	"encoding/json"
 	"errors"
@@ -15,8 +14,15 @@ import (
 // Labelled-record formats.
 const (
 	LabelledJSONL = "jsonl" // one JSON object a line
-	LabelledTSV   = "tsv"   // label<TAB>text
+	LabelledCSV   = "csv"   // RFC 4180 with a header row naming the columns
+	LabelledTSV   = "tsv"   // the same with tabs between the fields
+	// LabelledTabText is label<TAB>text lines without a header: the rest
+	// of the line after the first tab is the text, taken as it is.
+	LabelledTabText = "label-tab-text"
 )
+
+// LabelledFormats lists the formats ReadLabelled reads.
+var LabelledFormats = []string{LabelledJSONL, LabelledCSV, LabelledTSV, LabelledTabText}
 
 // Problems with labelled records. A LabelledSet's Problems are
 // RecordErrors that unwrap to one of these (or to ErrMalformed).
@@ -25,6 +31,9 @@ var (
 	ErrNoLabel  = errors.New("stream: record has no label")
 	ErrBadLabel = errors.New("stream: label is not a string or an array of strings")
 	ErrNoTab    = errors.New("stream: no tab between label and text")
+	// ErrHeaderLine: a label-tab-text line reads "label<TAB>text", a
+	// header; it is not trained on.
+	ErrHeaderLine = errors.New("stream: a header line, not a record (for a file with a header use --format tsv)")
 	// ErrLabelControl: a label holds a control character (Unicode general
 	// category Cc: TAB, CR, LF, NUL, ESC, ...), which would break a TSV
 	// output line or a terminal.
@@ -37,8 +46,13 @@ var (
 // LabelledOptions say how to read labelled records. The zero value reads
 // JSON Lines with the text under "text" and the label under "label".
 type LabelledOptions struct {
-	// Format is LabelledJSONL (the default, "") or LabelledTSV.
+	// Format is one of LabelledFormats; "" is LabelledJSONL.
 	Format string
+	// TextColumns and LabelColumn name the columns of CSV and TSV input
+	// ({"text"} and "label" when empty); several text columns are joined
+	// with a space.
+	TextColumns []string
+	LabelColumn string
 	// TextKeys are dotted paths to the text (array elements by decimal
 	// index, as for tag's keys); the values found are joined with a space.
 	// Empty means {"text"}.
@@ -103,8 +117,11 @@ func ReadLabelled(files []string, opt LabelledOptions) (*LabelledSet, error) {
 	if opt.Format == "" {
 		opt.Format = LabelledJSONL
 	}
-	if opt.Format != LabelledJSONL && opt.Format != LabelledTSV {
-		return nil, fmt.Errorf("%w %q (want %s or %s)", ErrUnknownForm, opt.Format, LabelledJSONL, LabelledTSV)
+	if !slices.Contains(LabelledFormats, opt.Format) {
+		return nil, fmt.Errorf("%w %q (want %s)", ErrUnknownForm, opt.Format, strings.Join(LabelledFormats, ", "))
+	}
+	if opt.LabelColumn == "" {
+		opt.LabelColumn = "label"
 	}
 	if len(opt.TextKeys) == 0 {
 		opt.TextKeys = []string{"text"}
@@ -116,14 +133,38 @@ func ReadLabelled(files []string, opt LabelledOptions) (*LabelledSet, error) {
 		opt.Report = 5
 	}
 	r := &labelReader{opt: opt, set: &LabelledSet{}, label: strings.Split(opt.LabelKey, ".")}
-	for _, k := range opt.TextKeys {
-		r.text = append(r.text, strings.Split(k, "."))
-	}
-	for _, name := range files {
-		if err := r.file(name); err != nil {
-			return nil, err
+	ropt := ReaderOptions{Format: InputJSONL, TextKeys: opt.TextKeys, Stdin: opt.Stdin}
+	switch opt.Format {
+	case LabelledTabText:
+		ropt.Format = InputText
+	case LabelledCSV, LabelledTSV:
+		ropt.Format, ropt.TextKeys, ropt.LabelColumn = InputCSV, opt.TextColumns, opt.LabelColumn
+		if opt.Format == LabelledTSV {
+			ropt.Format = InputTSV
 		}
 	}
+	rd, err := OpenReader(files, ropt)
+	if err != nil {
+		return nil, err
+	}
+	defer rd.Close()
+	for {
+		rec, err := rd.Read()
+		var re *RecordError
+		switch {
+		case err == io.EOF:
+		case errors.As(err, &re):
+			r.problem(re)
+			continue
+		case err != nil:
+			return nil, err
+		default:
+			r.record(rec)
+			continue
+		}
+		break
+	}
+	r.set.Blank = int(rd.Blank())
 	if len(r.set.Records) == 0 {
 		return r.set, fmt.Errorf("%w in %s", ErrNoRecords, strings.Join(files, ", "))
 	}
@@ -133,63 +174,42 @@ func ReadLabelled(files []string, opt LabelledOptions) (*LabelledSet, error) {
 type labelReader struct {
 	opt     LabelledOptions
 	set     *LabelledSet
-	text    [][]string
 	label   []string
-	scan    scanner
 	scratch []byte
 }
 
-func (r *labelReader) file(name string) error {
-	in, err := openInput(name, r.opt.Stdin, nil)
-	if err != nil {
-		return &InputError{File: name, Err: err}
-	}
-	defer in.closer()
-	br := bufio.NewReaderSize(in.r, 64<<10)
-	var line int64
-	for {
-		b, err := br.ReadBytes('\n')
-		if len(b) > 0 {
-			line++
-			r.record(name, line, bytes.TrimRight(b, "\r\n"))
-		}
-		if err == io.EOF {
-			return nil
-		}
-		if err != nil {
-			return &InputError{File: name, Line: line, Err: err}
-		}
-	}
-}
-
-func (r *labelReader) problem(file string, line int64, err error) {
+func (r *labelReader) problem(e *RecordError) {
 	r.set.Skipped++
 	if len(r.set.Problems) < r.opt.Report {
-		r.set.Problems = append(r.set.Problems, &RecordError{File: file, Line: line, Err: err})
+		r.set.Problems = append(r.set.Problems, e)
 	}
 }
 
-func (r *labelReader) record(file string, line int64, b []byte) {
-	if len(bytes.TrimSpace(b)) == 0 {
-		r.set.Blank++
-		return
-	}
+func (r *labelReader) record(rec *Record) {
 	var text string
 	var labels []string
 	var err error
-	if r.opt.Format == LabelledTSV {
-		text, labels, err = r.tsv(b)
-	} else {
-		text, labels, err = r.jsonl(b)
+	switch r.opt.Format {
+	case LabelledTabText:
+		text, labels, err = r.tsv(rec.Raw)
+		if err == nil && rec.Line == 1 && labels[0] == "label" && strings.TrimSpace(text) == "text" {
+			err = ErrHeaderLine
+		}
+	case LabelledCSV, LabelledTSV:
+		text = string(rec.Text)
+		labels, err = columnLabel(rec.Label)
+	default:
+		text = string(rec.Text)
+		labels, err = r.jsonLabels(rec.JSON)
 	}
 	if err != nil {
-		r.problem(file, line, err)
+		r.problem(&RecordError{File: rec.File, Line: rec.Line, Err: err})
 		return
 	}
 	if len(labels) > 1 {
 		r.set.Multi++
 	}
-	r.set.Records = append(r.set.Records, Labelled{Text: text, Labels: labels, File: file, Line: line})
+	r.set.Records = append(r.set.Records, Labelled{Text: text, Labels: labels, File: rec.File, Line: rec.Line})
 }
 
 func (r *labelReader) tsv(b []byte) (string, []string, error) {
@@ -209,6 +229,18 @@ func (r *labelReader) tsv(b []byte) (string, []string, error) {
 	return string(text), []string{l}, nil
 }
 
+// columnLabel is the label of a CSV or TSV field, trimmed of spaces.
+func columnLabel(f []byte) ([]string, error) {
+	l := string(bytes.TrimSpace(f))
+	if l == "" {
+		return nil, ErrNoLabel
+	}
+	if err := checkLabel(l); err != nil {
+		return nil, err
+	}
+	return []string{l}, nil
+}
+
 // checkLabel rejects a label (already trimmed of spaces) that holds a
 // control character.
 func checkLabel(l string) error {
@@ -218,41 +250,14 @@ func checkLabel(l string) error {
 	return nil
 }
 
-func (r *labelReader) jsonl(b []byte) (string, []string, error) {
-	if ok, e := r.scan.validObject(b); !ok {
-		return "", nil, fmt.Errorf("%w: %s at byte %d", ErrMalformed, e.msg, e.off+1)
-	}
-	var parts []string
-	for _, path := range r.text {
-		s, e, ok, scratch := findPath(b, 0, path, r.scratch)
-		r.scratch = scratch
-		if !ok {
-			continue
-		}
-		var v string
-		if json.Unmarshal(b[s:e], &v) != nil {
-			if string(b[s:e]) == "null" {
-				continue
-			}
-			return "", nil, fmt.Errorf("%w: %s", ErrNotString, strings.Join(path, "."))
-		}
-		if strings.TrimSpace(v) != "" {
-			parts = append(parts, v)
-		}
-	}
-	if len(parts) == 0 {
-		return "", nil, ErrNoText
-	}
-	s, e, ok, scratch := findPath(b, 0, r.label, r.scratch)
+// jsonLabels finds the label of a JSON record (a valid object).
+func (r *labelReader) jsonLabels(obj []byte) ([]string, error) {
+	s, e, ok, scratch := findPath(obj, skipSpace(obj, 0), r.label, r.scratch)
 	r.scratch = scratch
 	if !ok {
-		return "", nil, ErrNoLabel
+		return nil, ErrNoLabel
 	}
-	labels, err := decodeLabels(b[s:e])
-	if err != nil {
-		return "", nil, err
-	}
-	return strings.Join(parts, " "), labels, nil
+	return decodeLabels(obj[s:e])
 }
 
 // decodeLabels reads a label value: a string, a number (its spelling) or

@@ -56,7 +56,7 @@ func TestReadLabelled(t *testing.T) {
 		{
 			name:     "tsv",
 			in:       "schedule\twhen is the first boat\n\tno label\nno tab here\npraise\tlovely crew\tand tabs\n",
-			opt:      LabelledOptions{Format: LabelledTSV},
+			opt:      LabelledOptions{Format: LabelledTabText},
 			want:     []rec{{"when is the first boat", []string{"schedule"}, 1}, {"lovely crew\tand tabs", []string{"praise"}, 4}},
 			skipped:  2,
 			problems: []error{ErrNoLabel, ErrNoTab},
@@ -143,7 +143,7 @@ func TestReadLabelledFiles(t *testing.T) {
 	if !errors.Is(err, ErrNoRecords) || !strings.Contains(err.Error(), empty) {
 		t.Errorf("no records: %v", err)
 	}
-	if _, err := ReadLabelled([]string{plain}, LabelledOptions{Format: "csv"}); !errors.Is(err, ErrUnknownForm) {
+	if _, err := ReadLabelled([]string{plain}, LabelledOptions{Format: "yaml"}); !errors.Is(err, ErrUnknownForm) {
 		t.Errorf("format: %v", err)
 	}
 }
@@ -156,7 +156,7 @@ func FuzzReadLabelled(f *testing.F) {
 	f.Fuzz(func(t *testing.T, b []byte, tsv bool) {
 		opt := LabelledOptions{Stdin: bytes.NewReader(b), TextKeys: []string{"text", "m.0"}}
 		if tsv {
-			opt.Format = LabelledTSV
+			opt.Format = LabelledTabText
 		}
 		set, err := ReadLabelled([]string{"-"}, opt)
 		if set == nil {

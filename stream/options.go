@@ -21,6 +21,13 @@ const (
 	InputJSONL
 	// InputText treats every line as text, even one that looks like JSON.
 	InputText
+	// InputCSV reads RFC 4180 records (comma-separated, fields in double
+	// quotes where needed) after a header row that names the columns;
+	// TextKeys are then column names. A quoted field may hold line
+	// breaks. See csv.go for the rules.
+	InputCSV
+	// InputTSV is InputCSV with a tab as the separator (the same quoting).
+	InputTSV
 )
 
 // Emit is how a text line is written.
@@ -55,8 +62,12 @@ func ParseFormat(s string) (InputFormat, error) {
 		return InputJSONL, nil
 	case "text":
 		return InputText, nil
+	case "csv":
+		return InputCSV, nil
+	case "tsv":
+		return InputTSV, nil
 	}
-	return 0, fmt.Errorf("unknown format %q (want auto, jsonl or text)", s)
+	return 0, fmt.Errorf("unknown format %q (want auto, jsonl, text, csv or tsv)", s)
 }
 
 // ParseEmit reads "tsv" or "jsonl".
@@ -125,7 +136,10 @@ type Options struct {
 	// record separator (0x1E), as in JSON text sequences (journalctl -o
 	// json-seq); it is kept, and the tags go inside the object after it.
 	TextKeys []string
-	// TagKey and ConfidenceKey name the added keys ("tag", "confidence").
+	// TagKey and ConfidenceKey name the added keys ("tag", "confidence");
+	// for CSV and TSV, the two columns appended to every record, the
+	// header's names included (a header that has either already is an
+	// error).
 	TagKey, ConfidenceKey string
 	// Scores adds an object of every label's probability under ScoresKey
 	// ("scores"); Top > 0 adds the Top best labels, best first, as an

@@ -17,12 +17,12 @@ var fixedValues = map[string]map[string][]string{
 		"progress": {"auto", "on", "off"},
 	},
 	"train": {
-		"format":        {"jsonl", "tsv"},
+		"format":        {"jsonl", "csv", "tsv", "label-tab-text"},
 		"optimizer":     {"adadelta", "adam"},
 		"class-weights": {"none", "balanced"},
 	},
 	"eval": {
-		"format":        {"jsonl", "tsv"},
+		"format":        {"jsonl", "csv", "tsv", "label-tab-text"},
 		"optimizer":     {"adadelta", "adam"},
 		"class-weights": {"none", "balanced"},
 	},

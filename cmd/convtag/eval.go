@@ -30,12 +30,12 @@ func init() { commands = append(commands, newEvalCmd) }
 const baselineKind = "naive Bayes"
 
 type evalFlags struct {
-	model, format, labelKey, plots, plotFormat, baselineTrain string
-	textKeys                                                  []string
-	asJSON, noBaseline, conservative                          bool
-	target                                                    float64
-	folds                                                     int
-	train                                                     trainFlags // for --folds
+	model, plots, plotFormat, baselineTrain string
+	labelledFlags
+	asJSON, noBaseline, conservative bool
+	target                           float64
+	folds                            int
+	train                            trainFlags // for --folds
 }
 
 func newEvalCmd(a *app) *cobra.Command {
@@ -76,10 +76,11 @@ figures. Records with several labels are scored on the first.
 		Example: `  convtag eval -m ferry.safetensors testdata/demo/dev.jsonl
   convtag eval -m ferry.safetensors --target-precision 0.95 --plots plots/ dev.jsonl
   convtag eval -m ferry.safetensors --json dev.jsonl | jq .macro_f1
-  convtag eval --folds 10 --epochs 10 --format tsv sentences.tsv`,
+  convtag eval --folds 10 --epochs 10 --format label-tab-text sentences.txt`,
 		Args: cobra.ArbitraryArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
 			f.train.dimSet = cmd.Flags().Changed("vector-size")
+			f.noteChanged(cmd.Flags())
 			if err := f.check(cmd, args); err != nil {
 				return err
 			}
@@ -91,9 +92,7 @@ figures. Records with several labels are scored on the first.
 	}
 	fl := c.Flags()
 	fl.StringVarP(&f.model, "model", "m", "", "model file (default: the built-in model)")
-	fl.StringArrayVar(&f.textKeys, "text-key", []string{"text"}, "dotted path of the text in a JSON record; repeat to join several")
-	fl.StringVar(&f.labelKey, "label-key", "label", "dotted path of the label (a string or an array of strings)")
-	fl.StringVar(&f.format, "format", stream.LabelledJSONL, "input format: jsonl or tsv (label<TAB>text)")
+	f.labelledFlags.add(fl)
 	fl.BoolVar(&f.asJSON, "json", false, "print the figures as one JSON object")
 	fl.Float64Var(&f.target, "target-precision", 0, "find the lowest confidence threshold whose kept tags reach this precision, as does every higher one")
 	fl.BoolVar(&f.conservative, "conservative", false, "with --target-precision: the lower end of precision's 95% interval must reach it")
@@ -131,8 +130,8 @@ func (f *evalFlags) check(cmd *cobra.Command, args []string) error {
 	if len(args) == 0 {
 		return usageErr("convtag eval -m MODEL FILE...", "eval: no labelled input files")
 	}
-	if f.format != stream.LabelledJSONL && f.format != stream.LabelledTSV {
-		return usageErr("--format jsonl or --format tsv", "eval: unknown --format %q", f.format)
+	if err := f.labelledFlags.check("eval"); err != nil {
+		return err
 	}
 	if f.conservative && f.target == 0 {
 		return usageErr("--target-precision 0.9 --conservative", "eval: --conservative needs --target-precision")
@@ -174,7 +173,7 @@ func (f *evalFlags) check(cmd *cobra.Command, args []string) error {
 // labelled reads labelled records for eval and reports the skipped ones,
 // each problem on a line of its own with file and line, then the count.
 func (f *evalFlags) labelled(a *app, files []string) (*stream.LabelledSet, error) {
-	set, err := stream.ReadLabelled(files, stream.LabelledOptions{Format: f.format, TextKeys: f.textKeys, LabelKey: f.labelKey, Stdin: a.stdin})
+	set, err := stream.ReadLabelled(files, f.options(a))
 	if set != nil {
 		for _, p := range set.Problems {
 			fmt.Fprintf(a.stderr, "convtag: %s\n", p)
@@ -188,7 +187,11 @@ func (f *evalFlags) labelled(a *app, files []string) (*stream.LabelledSet, error
 	}
 	if err != nil {
 		var ie *stream.InputError
-		if errors.As(err, &ie) {
+		var he *stream.HeaderError
+		switch {
+		case errors.As(err, &he):
+			return nil, headerErr(err, true)
+		case errors.As(err, &ie):
 			return nil, withCode(exitFailure, err)
 		}
 		return nil, withCode(exitFailure, fmt.Errorf("eval: %w", err))

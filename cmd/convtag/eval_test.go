@@ -275,7 +275,7 @@ func TestEvalErrors(t *testing.T) {
 		{"folds with model", []string{"eval", "--folds", "3", "-m", evalModel, demoDev}, exitUsage, "leave out -m"},
 		{"one fold", []string{"eval", "--folds", "1", demoDev}, exitUsage, "at least 2"},
 		{"missing file", []string{"eval", "-m", evalModel, "no/such.jsonl"}, exitFailure, "no/such.jsonl"},
-		{"no known labels", []string{"eval", "-m", evalModel, "--format", "tsv", "testdata/eval/unknown.tsv"}, exitFailure, "no record has a label"},
+		{"no known labels", []string{"eval", "-m", evalModel, "--format", "label-tab-text", "testdata/eval/unknown.tsv"}, exitFailure, "no record has a label"},
 		{"bad model", []string{"eval", "-m", demoDev, demoDev}, exitUsage, "dev.jsonl"},
 	} {
 		t.Run(c.name, func(t *testing.T) {

@@ -63,7 +63,7 @@ const maxShownProblems = 20
 func newTagCmd(a *app) *cobra.Command {
 	var (
 		modelPath, format, emit, output, compress, rejects, progress string
-		textKeys, keep, drop                                         []string
+		textKeys, textColumns, keep, drop                            []string
 		o                                                            stream.Options
 		strict, showStats                                            bool
 		why                                                          int
@@ -89,6 +89,15 @@ A text key holding an array of byte values (0 to 255), as journalctl -o json
 writes a message that is not valid UTF-8, is tagged on those bytes; a record
 starting with the record separator 0x1E (journalctl -o json-seq) is JSON, and
 the separator is kept.
+
+--format csv and --format tsv read RFC 4180 records (TSV: tab-separated,
+the same quoting) after a header row; the text is in the --text-column
+columns (default text). Each record keeps its bytes and gets two fields
+appended, the tag and the confidence, named by --tag-key and
+--confidence-key in the header. A quoted field may hold line breaks. A
+header without the text column, with a name twice, or with the tag or
+confidence column already is an error (exit 2); a record with the wrong
+number of fields passes through unchanged and is counted.
 
 Every record read gives one record written, unless --keep or --drop leaves
 it out. Records that cannot be tagged pass through unchanged and are counted
@@ -136,7 +145,9 @@ a same-size overwrite would switch the model in the middle of a block.
 			if err := checkTagFlags(&o, format, emit, compress, progress, output, why, textKeys); err != nil {
 				return err
 			}
-			o.TextKeys = textKeys
+			if err := tagColumns(&o, textKeys, textColumns, why); err != nil {
+				return err
+			}
 			o.Keep, o.Drop = splitTags(keep), splitTags(drop)
 			o.Output = output
 			if output == "" || output == "-" {
@@ -259,14 +270,19 @@ a same-size overwrite would switch the model in the middle of a block.
 			if left != "" {
 				err = fmt.Errorf("%w; %s", err, left)
 			}
+			var he *stream.HeaderError
+			if errors.As(err, &he) {
+				return headerErr(err, false)
+			}
 			return withCode(exitFailure, err)
 		},
 	}
 	f := c.Flags()
 	f.StringVarP(&modelPath, "model", "m", "", "model file (default: the built-in model)")
-	f.StringVar(&format, "format", "auto", "input kind: auto (a line starting with '{' is JSON), jsonl or text")
+	f.StringVar(&format, "format", "auto", "input kind: auto (a line starting with '{' is JSON), jsonl, text, or csv or tsv (with a header row)")
 	f.StringArrayVarP(&textKeys, "text-key", "k", nil, "dotted path of the text in a JSON record; repeat to join several with a space (default text)")
-	f.StringVar(&o.TagKey, "tag-key", "tag", "key of the added tag")
+	f.StringArrayVar(&textColumns, "text-column", nil, "csv/tsv: header name of the text column; repeat to join several with a space (default text)")
+	f.StringVar(&o.TagKey, "tag-key", "tag", "key of the added tag (for csv/tsv: the name of the added column)")
 	f.StringVar(&o.ConfidenceKey, "confidence-key", "confidence", "key of the added confidence (rounded to 4 decimals)")
 	f.BoolVar(&o.Scores, "scores", false, `add every label's probability as an object under "scores" (JSON output)`)
 	f.IntVar(&o.Top, "top", 0, `add the N best labels, best first, as an array under "top" (JSON output)`)
@@ -302,7 +318,7 @@ const (
 func checkTagFlags(o *stream.Options, format, emit, compress, progress, output string, why int, textKeys []string) error {
 	var err error
 	if o.Format, err = stream.ParseFormat(format); err != nil {
-		return usageErr("convtag tag --format auto|jsonl|text", "--format: %v", err)
+		return usageErr("convtag tag --format auto|jsonl|text|csv|tsv", "--format: %v", err)
 	}
 	if o.Emit, err = stream.ParseEmit(emit); err != nil {
 		return usageErr("convtag tag --emit tsv|jsonl", "--emit: %v", err)

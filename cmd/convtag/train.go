@@ -40,15 +40,15 @@ const (
 
 // trainFlags are the train command's settings.
 type trainFlags struct {
-	output, format, labelKey, dev, vectors, classWeights, optimizer string
-	textKeys                                                        []string
-	devFraction, lr                                                 float64
-	dim, filters, epochs, patience, batch, jobs, minCount, buckets  int
-	hidden, maxWords                                                int
-	widths                                                          []int
-	seed                                                            uint64
-	freeze, noFold, foldHalf, quiet                                 bool
-	dimSet                                                          bool
+	output, dev, vectors, classWeights, optimizer string
+	labelledFlags
+	devFraction, lr                                                float64
+	dim, filters, epochs, patience, batch, jobs, minCount, buckets int
+	hidden, maxWords                                               int
+	widths                                                         []int
+	seed                                                           uint64
+	freeze, noFold, foldHalf, quiet                                bool
+	dimSet                                                         bool
 }
 
 func newTrainCmd(a *app) *cobra.Command {
@@ -61,8 +61,12 @@ func newTrainCmd(a *app) *cobra.Command {
 Records are JSON Lines, the text under --text-key (a dotted path; repeat the
 flag to join several values with a space) and the tag under --label-key (a
 string, or an array of strings for records with several tags: training uses
-the first and says how many had more), or "label<TAB>text" lines with
---format tsv. FILEs may be plain, gzip, zstd or bzip2 ("-" is standard
+the first and says how many had more). --format csv and --format tsv read
+RFC 4180 records after a header row (TSV: tabs between the fields, the
+same quoting), the text in the --text-column columns and the label in
+--label-column; a header is never trained on, and one that lacks a named
+column is an error. --format label-tab-text reads "label<TAB>text" lines
+without a header. FILEs may be plain, gzip, zstd or bzip2 ("-" is standard
 input). Records without text or label are counted and the first few shown
 with file and line; they are never used silently.
 
@@ -95,19 +99,18 @@ finish, and the run ends as usual.
 
 ` + exitHelp,
 		Example: `  convtag train -o ferry.safetensors testdata/demo/train.jsonl --dev testdata/demo/dev.jsonl
-  convtag train -o m.safetensors --format tsv --epochs 10 lines.tsv.gz
+  convtag train -o m.safetensors --format tsv --text-column message --label-column queue --epochs 10 tickets.tsv.gz
   convtag train -o m.safetensors --text-key msg.subject --text-key msg.body --label-key tags chat.jsonl`,
 		Args: cobra.ArbitraryArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
 			f.dimSet = cmd.Flags().Changed("vector-size")
+			f.noteChanged(cmd.Flags())
 			return runTrain(a, &f, args)
 		},
 	}
 	fl := c.Flags()
 	fl.StringVarP(&f.output, "output", "o", "", "model file to write (required)")
-	fl.StringArrayVar(&f.textKeys, "text-key", []string{"text"}, "dotted path of the text in a JSON record; repeat to join several")
-	fl.StringVar(&f.labelKey, "label-key", "label", "dotted path of the label (a string or an array of strings)")
-	fl.StringVar(&f.format, "format", stream.LabelledJSONL, "input format: jsonl or tsv (label<TAB>text)")
+	f.labelledFlags.add(fl)
 	fl.StringVar(&f.dev, "dev", "", "held-out records for early stopping and the reported accuracy, instead of --dev-fraction")
 	fl.Float64Var(&f.devFraction, "dev-fraction", defaultDevFraction, "share of each tag's records held out when there is no --dev")
 	fl.IntVar(&f.dim, "vector-size", model.DefaultDim, "embedding size (with --vectors, the vectors' own size unless given)")
@@ -139,8 +142,8 @@ func (f *trainFlags) check(args []string) error {
 		return usageErr("convtag train -o MODEL FILE...", "train: no output file (-o)")
 	case len(args) == 0:
 		return usageErr("convtag train -o MODEL FILE...", "train: no input files")
-	case f.format != stream.LabelledJSONL && f.format != stream.LabelledTSV:
-		return usageErr("--format jsonl or --format tsv", "train: unknown --format %q", f.format)
+	case f.labelledFlags.check("train") != nil:
+		return f.labelledFlags.check("train")
 	case f.dev == "" && !(f.devFraction > 0 && f.devFraction < 1):
 		return usageErr("--dev-fraction 0.1, or --dev FILE", "train: --dev-fraction %g is not between 0 and 1", f.devFraction)
 	case f.epochs < 1 || f.batch < 1 || f.patience < 0 || f.jobs < 0:
@@ -215,7 +218,7 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 			fmt.Fprintf(a.stderr, "convtag: "+format+"\n", v...)
 		}
 	}
-	ropt := stream.LabelledOptions{Format: f.format, TextKeys: f.textKeys, LabelKey: f.labelKey, Stdin: a.stdin}
+	ropt := f.options(a)
 	set, err := untilDone(ctx, func() (*stream.LabelledSet, error) { return readLabelled(a, args, ropt, "training") })
 	if err != nil {
 		return err
@@ -507,7 +510,11 @@ func readLabelled(a *app, files []string, opt stream.LabelledOptions, what strin
 	}
 	if err != nil {
 		var ie *stream.InputError
-		if errors.As(err, &ie) {
+		var he *stream.HeaderError
+		switch {
+		case errors.As(err, &he):
+			return nil, headerErr(err, true)
+		case errors.As(err, &ie):
 			return nil, withCode(exitFailure, err)
 		}
 		return nil, withCode(exitFailure, fmt.Errorf("train: %w", err))

@@ -122,11 +122,11 @@ func TestTrainInputProblems(t *testing.T) {
 	}{
 		{"no output", []string{"train", bad}, exitUsage, []string{"no output file", "try: "}},
 		{"no inputs", []string{"train", "-o", out}, exitUsage, []string{"no input files"}},
-		{"bad format", []string{"train", "-o", out, "--format", "csv", bad}, exitUsage, []string{"--format"}},
+		{"bad format", []string{"train", "-o", out, "--format", "yaml", bad}, exitUsage, []string{"--format"}},
 		{"bad weights", []string{"train", "-o", out, "--class-weights", "heavy", bad}, exitUsage, []string{"class-weights"}},
 		{"no records", []string{"train", "-o", out, bad}, exitFailure, []string{bad + ":1:", bad + ":2:", "2 training records skipped", "no usable labelled records in " + bad}},
 		{"missing file", []string{"train", "-o", out, filepath.Join(dir, "nope.jsonl")}, exitFailure, []string{"nope.jsonl"}},
-		{"tsv, rare label", append(append([]string{"train", "-o", out, "--format", "tsv", "--class-weights", "balanced"}, small...), tsv), exitOK, []string{`label "c" has fewer than 2 records`, tsv + ":6:", "1 training records skipped"}},
+		{"label-tab-text, rare label", append(append([]string{"train", "-o", out, "--format", "label-tab-text", "--class-weights", "balanced"}, small...), tsv), exitOK, []string{`label "c" has fewer than 2 records`, tsv + ":6:", "1 training records skipped"}},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			code, _, stderr := runCmd(t, "", tc.args...)
