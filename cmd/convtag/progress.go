@@ -83,16 +83,22 @@ func (p *tagProgress) update(read, records int64) {
 	defer p.mu.Unlock()
 	if now := time.Now(); now.Sub(p.last) >= 200*time.Millisecond {
 		p.last = now
-		p.draw(read, records, now)
+		p.draw(read, records, now, false)
 	}
 }
 
-func (p *tagProgress) draw(read, records int64, now time.Time) {
+// draw redraws the bar. Until the final frame it stays below the total:
+// the bar library ends its line when the total is reached and would draw
+// any later frame over the line that follows.
+func (p *tagProgress) draw(read, records int64, now time.Time, final bool) {
 	rate := float64(records) / max(now.Sub(p.start).Seconds(), 1e-3)
-	p.bar.Describe(fmt.Sprintf("%s records · %s records/s", groupDigits(records), siCount(rate)))
 	if p.total >= 0 {
 		read = min(read, p.total)
+		if !final && p.total > 0 {
+			read = min(read, p.total-1)
+		}
 	}
+	p.bar.Describe(fmt.Sprintf("%s records · %s records/s", groupDigits(records), siCount(rate)))
 	p.bar.Set64(read)
 }
 
@@ -107,13 +113,12 @@ func (p *tagProgress) end(st stream.Stats, complete bool) {
 		read = p.total
 	}
 	if read >= 0 {
-		p.draw(read, st.Written, time.Now())
-		p.bar.Finish() // at 100%: prints the newline
+		p.draw(read, st.Written, time.Now(), true) // at 100%: the bar ends its line
+		p.bar.Finish()
 		return
 	}
-	p.draw(max(read, 0), st.Written, time.Now())
-	p.bar.Exit()
-	fmt.Fprintln(p.w)
+	p.draw(max(read, 0), st.Written, time.Now(), false)
+	p.bar.Exit() // ends the line (OptionOnCompletion)
 }
 
 // groupDigits writes n with a comma every three digits: 1,234,567.
