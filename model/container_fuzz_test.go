@@ -12,6 +12,8 @@ import (
 	"strconv"
 	"strings"
 	"testing"
+
+	"convtag/model/token"
 )
 
 // The seed corpora live under testdata/fuzz/Fuzz*/ and are written by
@@ -108,7 +110,7 @@ func FuzzLoad(f *testing.F) {
 
 // stTinyModel is the small model the fuzz seeds start from.
 func stTinyModel(t testing.TB) *Model {
-	m, err := New(Config{Dim: 2, Widths: []int{1, 2}, Filters: 2, Hidden: 2, Buckets: 2}, TokenizerSettings{},
+	m, err := New(Config{Dim: 2, Widths: []int{1, 2}, Filters: 2, Hidden: 2, Buckets: 2}, token.Settings{},
 		[]string{"schedule", "spam"}, []string{"ferry", "tide", "pier"}, 3)
 	if err != nil {
 		t.Fatal(err)

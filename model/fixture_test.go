@@ -14,6 +14,8 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+
+	"convtag/model/token"
 )
 
 // The -update flag rewrites golden files. Another test file of the package
@@ -48,7 +50,7 @@ var stFixtureWords = strings.Fields(`the a to at from is on when my of
 func stFixtureModel(t testing.TB) *Model {
 	t.Helper()
 	cfg := Config{Dim: 16, Widths: []int{3, 4, 5}, Filters: 8, Buckets: 64}
-	m, err := New(cfg, TokenizerSettings{}, []string{"schedule", "tickets", "spam"}, stFixtureWords, 20261201)
+	m, err := New(cfg, token.Settings{}, []string{"schedule", "tickets", "spam"}, stFixtureWords, 20261201)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -3,6 +3,8 @@ package model
 import (
 	"fmt"
 	"math"
+
+	"convtag/model/token"
 )
 
 // Predictor runs the forward pass of one Model. It holds all per-call
@@ -16,8 +18,8 @@ import (
 type Predictor struct {
 	m      *Model
 	k      *kernels
-	tok    *Tokenizer
-	toks   Tokens
+	tok    *token.Tokenizer
+	toks   token.Tokens
 	rows   []int32
 	direct bool
 	last   []int32 // the last folded text, for Winners

@@ -6,6 +6,8 @@ import (
 	"runtime"
 	"sync"
 	"testing"
+
+	"convtag/model/token"
 )
 
 // Forward-pass benchmarks: one record per op, 20 and 60 tokens, d = 128 and
@@ -54,7 +56,7 @@ func (s *benchSet) model(b *testing.B) *Model {
 		for i := range words {
 			words[i] = fmt.Sprintf("word%d", i)
 		}
-		s.m, s.buildErr = New(cfg, TokenizerSettings{}, []string{"arrivals", "delays", "tickets"}, words, 1)
+		s.m, s.buildErr = New(cfg, token.Settings{}, []string{"arrivals", "delays", "tickets"}, words, 1)
 	})
 	if s.buildErr != nil {
 		b.Fatal(s.buildErr)

@@ -15,6 +15,8 @@ import (
 
 	"gonum.org/v1/gonum/blas"
 	"gonum.org/v1/gonum/blas/blas32"
+
+	"convtag/model/token"
 )
 
 // fwConfigs are the shapes the forward tests run on: filter counts below,
@@ -38,7 +40,7 @@ func fwModel(t testing.TB, cfg Config, nw int, seed uint64) *Model {
 	for i := range words {
 		words[i] = fmt.Sprintf("w%d", i)
 	}
-	m, err := New(cfg, TokenizerSettings{}, []string{"harbour", "timetable", "luggage"}, words, seed)
+	m, err := New(cfg, token.Settings{}, []string{"harbour", "timetable", "luggage"}, words, seed)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -415,7 +417,7 @@ func TestPredictTokenizes(t *testing.T) {
 	m := fwModel(t, fwConfigs[0].cfg, 50, 4)
 	p := m.NewPredictor()
 	for _, s := range []string{"w1 w2 w3", "w7 unknownword w49, w0!", "ferry to Kelloway at 9"} {
-		var ts Tokens
+		var ts token.Tokens
 		m.TokenizerFor().Tokenize(&ts, []byte(s))
 		rows := make([]int32, ts.Len())
 		for i := range rows {

@@ -8,30 +8,32 @@ import (
 	"slices"
 	"strconv"
 	"strings"
+
+	"convtag/model/token"
 )
 
 // Info describes a model for people and programs (`convtag inspect`). Its
 // JSON form is the machine-readable description; WriteText prints the same
 // for people. Every slice and map is a copy the caller owns.
 type Info struct {
-	File          string            `json:"file,omitempty"`      // set by the caller; Info leaves it empty
-	FileSize      int64             `json:"file_size,omitempty"` // bytes; 0 for a model built in memory
-	FormatVersion int               `json:"format_version"`
-	Labels        []string          `json:"labels"`
-	Vocabulary    int               `json:"vocabulary"` // known words, V
-	Buckets       int               `json:"buckets"`    // shared rows for unknown words, B
-	Rows          int               `json:"rows"`       // embedding rows, 1+V+B
-	Dim           int               `json:"dim"`
-	Widths        []int             `json:"widths"`
-	Filters       int               `json:"filters"`
-	Hidden        int               `json:"hidden"`
-	Parameters    int64             `json:"parameters"` // trainable weights, fold tables excluded
-	Folded        bool              `json:"folded"`
-	FoldDType     string            `json:"fold_dtype,omitempty"` // "F32" or "F16" when folded
-	Tokenizer     TokenizerSettings `json:"tokenizer"`
-	Checksum      string            `json:"checksum,omitempty"`
-	BaselineBytes int               `json:"baseline_bytes,omitempty"` // size of the stored naive-Bayes baseline
-	CreatedBy     string            `json:"created_by,omitempty"`
+	File          string         `json:"file,omitempty"`      // set by the caller; Info leaves it empty
+	FileSize      int64          `json:"file_size,omitempty"` // bytes; 0 for a model built in memory
+	FormatVersion int            `json:"format_version"`
+	Labels        []string       `json:"labels"`
+	Vocabulary    int            `json:"vocabulary"` // known words, V
+	Buckets       int            `json:"buckets"`    // shared rows for unknown words, B
+	Rows          int            `json:"rows"`       // embedding rows, 1+V+B
+	Dim           int            `json:"dim"`
+	Widths        []int          `json:"widths"`
+	Filters       int            `json:"filters"`
+	Hidden        int            `json:"hidden"`
+	Parameters    int64          `json:"parameters"` // trainable weights, fold tables excluded
+	Folded        bool           `json:"folded"`
+	FoldDType     string         `json:"fold_dtype,omitempty"` // "F32" or "F16" when folded
+	Tokenizer     token.Settings `json:"tokenizer"`
+	Checksum      string         `json:"checksum,omitempty"`
+	BaselineBytes int            `json:"baseline_bytes,omitempty"` // size of the stored naive-Bayes baseline
+	CreatedBy     string         `json:"created_by,omitempty"`
 	// Training is the training summary decoded from its metadata string:
 	// JSON exactly as written, or nil when there is none or it is not
 	// valid JSON (TrainingError then says why).

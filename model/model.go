@@ -1,5 +1,7 @@
 package model
 
+import "convtag/model/token"
+
 // Conv is one convolution of a given width.
 type Conv struct {
 	Width int
@@ -32,7 +34,7 @@ type FoldTable struct {
 // be written. Close releases the mapping; no Predictor may be used after it.
 type Model struct {
 	Config    Config
-	Tokenizer TokenizerSettings
+	Tokenizer token.Settings
 	Labels    []string
 
 	// Emb is the embedding matrix [Rows()][Dim]: row 0 is padding (all
@@ -59,7 +61,7 @@ type Model struct {
 	Meta map[string]string
 
 	closer func() error
-	tok    *Tokenizer
+	tok    *token.Tokenizer
 	src    *source // the file's bytes when opened or loaded (open.go); nil when built
 }
 

@@ -13,6 +13,8 @@ import (
 	"strconv"
 	"strings"
 	"unsafe"
+
+	"convtag/model/token"
 )
 
 // Tensor names of a model file (see the contract in Encode's doc).
@@ -45,7 +47,7 @@ const (
 	MetaFormatVersion = "format_version" // decimal FormatVersion
 	MetaLabels        = "labels"         // JSON array of strings
 	MetaConfig        = "config"         // JSON of Config
-	MetaTokenizer     = "tokenizer"      // JSON of TokenizerSettings
+	MetaTokenizer     = "tokenizer"      // JSON of token.Settings
 	MetaTraining      = "training"       // JSON training summary, optional, written by training
 	MetaChecksum      = "checksum"       // "sha256:" + hex of the whole data buffer
 	MetaCreatedBy     = "created_by"     // "convtag " + Version
@@ -260,7 +262,7 @@ func assemble(meta map[string]string, tensors []Tensor) (*Model, error) {
 		}
 		return nil, formatErr(extra[0], ErrUnexpectedTensor, "not part of this model's config%s", more)
 	}
-	m.tok = NewTokenizer(m.Tokenizer)
+	m.tok = token.New(m.Tokenizer)
 	return m, nil
 }
 

@@ -17,6 +17,7 @@ import (
 	"unsafe"
 
 	"convtag/model/nb"
+	"convtag/model/token"
 )
 
 // stModel returns a small random model; hidden adds a hidden layer, fold
@@ -28,7 +29,7 @@ func stModel(t testing.TB, words int, hidden int, fold string) *Model {
 		ws[i] = fmt.Sprintf("w%d", i)
 	}
 	cfg := Config{Dim: 6, Widths: []int{2, 3}, Filters: 4, Hidden: hidden, Buckets: 5}
-	m, err := New(cfg, TokenizerSettings{KeepPunct: true, MaxTokens: 50}, []string{"pier", "tide", "gull"}, ws, 7)
+	m, err := New(cfg, token.Settings{KeepPunct: true, MaxTokens: 50}, []string{"pier", "tide", "gull"}, ws, 7)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -643,7 +644,7 @@ func BenchmarkOpen(b *testing.B) {
 		for i := range ws {
 			ws[i] = fmt.Sprintf("word%06d", i)
 		}
-		m, err := New(DefaultConfig(), TokenizerSettings{}, []string{"schedule", "tickets", "spam"}, ws, 1)
+		m, err := New(DefaultConfig(), token.Settings{}, []string{"schedule", "tickets", "spam"}, ws, 1)
 		if err != nil {
 			b.Fatal(err)
 		}

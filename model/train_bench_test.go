@@ -12,6 +12,7 @@ import (
 	"time"
 
 	"convtag/model/internal/uci"
+	"convtag/model/token"
 )
 
 // benchData returns the UCI sentences as examples for a model of dimension
@@ -26,8 +27,8 @@ func benchData(b *testing.B, d int) (*Model, []Example, []Example) {
 	if err != nil {
 		b.Skip(err)
 	}
-	tok := NewTokenizer(TokenizerSettings{})
-	var ts Tokens
+	tok := token.New(token.Settings{})
+	var ts token.Tokens
 	counts := map[string]int{}
 	labels := make([]int, len(s))
 	for i, x := range s {
@@ -37,7 +38,7 @@ func benchData(b *testing.B, d int) (*Model, []Example, []Example) {
 		}
 	}
 	cfg := Config{Dim: d, Widths: []int{3, 4, 5}, Filters: 100, Buckets: 1000}
-	m, err := New(cfg, TokenizerSettings{}, []string{"negative", "positive"}, BuildWords(counts, 2, 0), 1)
+	m, err := New(cfg, token.Settings{}, []string{"negative", "positive"}, BuildWords(counts, 2, 0), 1)
 	if err != nil {
 		b.Fatal(err)
 	}

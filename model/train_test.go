@@ -12,6 +12,8 @@ import (
 	"path/filepath"
 	"slices"
 	"testing"
+
+	"convtag/model/token"
 )
 
 // tinyNet returns a small random network and a batch over its rows.
@@ -19,7 +21,7 @@ func tinyNet(t *testing.T, hidden int, seed uint64) (*Model, []Example) {
 	t.Helper()
 	cfg := Config{Dim: 5, Widths: []int{1, 2, 3}, Filters: 4, Hidden: hidden, Buckets: 3}
 	words := []string{"a", "b", "c", "d", "e", "f"}
-	m, err := New(cfg, TokenizerSettings{}, []string{"x", "y", "z"}, words, seed)
+	m, err := New(cfg, token.Settings{}, []string{"x", "y", "z"}, words, seed)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -172,7 +174,7 @@ func TestGradientTorch(t *testing.T) {
 			for i := range 30 {
 				words = append(words, fmt.Sprintf("w%d", i))
 			}
-			m, err := New(cfg, TokenizerSettings{}, []string{"a", "b", "c"}, words, 5)
+			m, err := New(cfg, token.Settings{}, []string{"a", "b", "c"}, words, 5)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -407,7 +409,7 @@ func TestTrainDeterministic(t *testing.T) {
 		for _, jobs := range []int{1, 2, 3} {
 			var first []byte
 			for run := range 2 {
-				m, err := New(cfg, TokenizerSettings{}, []string{"no", "yes"}, words, 4)
+				m, err := New(cfg, token.Settings{}, []string{"no", "yes"}, words, 4)
 				if err != nil {
 					t.Fatal(err)
 				}
@@ -438,7 +440,7 @@ func TestTrainSameWithoutAVX512(t *testing.T) {
 	var bits [2][]byte
 	for i, on := range []bool{true, false} {
 		trainAVX512 = on
-		m, err := New(cfg, TokenizerSettings{}, []string{"no", "yes"}, words, 4)
+		m, err := New(cfg, token.Settings{}, []string{"no", "yes"}, words, 4)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -459,7 +461,7 @@ func TestTrainLearns(t *testing.T) {
 	words := []string{"p", "q", "r", "s", "t", "u", "v", "w", "x", "y"}
 	for _, opt := range []string{OptAdadelta, OptAdam} {
 		t.Run(opt, func(t *testing.T) {
-			m, err := New(cfg, TokenizerSettings{}, []string{"no", "yes"}, words, 4)
+			m, err := New(cfg, token.Settings{}, []string{"no", "yes"}, words, 4)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -539,7 +541,7 @@ func TestTrainStop(t *testing.T) {
 		{"never", 0, nil},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			m, err := New(cfg, TokenizerSettings{}, []string{"no", "yes"}, words, 4)
+			m, err := New(cfg, token.Settings{}, []string{"no", "yes"}, words, 4)
 			if err != nil {
 				t.Fatal(err)
 			}

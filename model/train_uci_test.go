@@ -17,6 +17,7 @@ import (
 
 	"convtag/model/internal/uci"
 	"convtag/model/nb"
+	"convtag/model/token"
 )
 
 // The UCI cross-validation recipe, shared with testdata/torch_train.py.
@@ -188,8 +189,8 @@ func TestUCICrossValidation(t *testing.T) {
 func uciFolds(t *testing.T, texts []string, labels []int, folds int) []uciFold {
 	r := uciRecipe
 	r.Folds = folds
-	tok := NewTokenizer(TokenizerSettings{})
-	var ts Tokens
+	tok := token.New(token.Settings{})
+	var ts token.Tokens
 	tokens := make([][]string, len(texts))
 	for i, s := range texts {
 		tok.Tokenize(&ts, []byte(s))
@@ -219,7 +220,7 @@ func uciFolds(t *testing.T, texts []string, labels []int, folds int) []uciFold {
 			nbY = append(nbY, labels[i])
 		}
 		cfg := Config{Dim: r.Dim, Widths: r.Widths, Filters: r.Filters, Buckets: r.Buckets}
-		m, err := New(cfg, TokenizerSettings{}, []string{"negative", "positive"}, BuildWords(counts, r.MinCount, 0), 1)
+		m, err := New(cfg, token.Settings{}, []string{"negative", "positive"}, BuildWords(counts, r.MinCount, 0), 1)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -268,7 +269,7 @@ func uciTrainGo(t *testing.T, f uciFold, k, jobs int) (float64, int) {
 	for i := range words {
 		words[i] = strconv.Itoa(i)
 	}
-	m, err := New(cfg, TokenizerSettings{}, []string{"negative", "positive"}, words, r.Seed+uint64(k))
+	m, err := New(cfg, token.Settings{}, []string{"negative", "positive"}, words, r.Seed+uint64(k))
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -10,6 +10,7 @@ import (
 	"testing"
 
 	"convtag/model"
+	"convtag/model/token"
 )
 
 // evalVariant loads the committed eval model as a writable copy, lets edit
@@ -136,7 +137,7 @@ func TestEvalErrorLinesCapped(t *testing.T) {
 		labels = append(labels, fmt.Sprintf("berth-%04d", i))
 	}
 	cfg := model.Config{Dim: 4, Widths: []int{3}, Filters: 2, Buckets: 8}
-	m, err := model.New(cfg, model.TokenizerSettings{}, labels, []string{"ferry", "fog"}, 1)
+	m, err := model.New(cfg, token.Settings{}, labels, []string{"ferry", "fog"}, 1)
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -22,6 +22,7 @@ import (
 
 	"convtag/model"
 	"convtag/model/nb"
+	"convtag/model/token"
 	"convtag/model/vectors"
 	"convtag/stream"
 )
@@ -214,8 +215,8 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 	if err != nil {
 		return err
 	}
-	tok := model.NewTokenizer(model.TokenizerSettings{})
-	var ts model.Tokens
+	tok := token.New(token.Settings{})
+	var ts token.Tokens
 	cut := func(recs []stream.Labelled) []tokenized {
 		out := make([]tokenized, len(recs))
 		for i, r := range recs {
@@ -308,7 +309,7 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 	if err := cfg.Validate(); err != nil {
 		return usageErr("", "train: %w", err)
 	}
-	m, err := model.New(cfg, model.TokenizerSettings{}, labels, words, f.seed)
+	m, err := model.New(cfg, token.Settings{}, labels, words, f.seed)
 	if err != nil {
 		return withCode(exitFailure, fmt.Errorf("train: %w", err))
 	}

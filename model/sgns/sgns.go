@@ -13,7 +13,7 @@ import (
 	"sync/atomic"
 	"time"
 
-	"convtag/model"
+	"convtag/model/token"
 	"convtag/model/vectors"
 )
 
@@ -90,7 +90,7 @@ type Options struct {
 	Jobs int
 	// Tokenizer cuts the text; its MaxTokens is replaced by
 	// MaxRecordTokens.
-	Tokenizer model.TokenizerSettings
+	Tokenizer token.Settings
 	// Progress, when set, is called about every ProgressEvery (default one
 	// second) and once at the end of each phase, from one goroutine at a
 	// time.
@@ -207,7 +207,7 @@ func Train(ctx context.Context, c Corpus, o Options) (*Result, error) {
 	}
 	tokSet := o.Tokenizer
 	tokSet.MaxTokens = MaxRecordTokens
-	tok := model.NewTokenizer(tokSet)
+	tok := token.New(tokSet)
 
 	start := time.Now()
 	var counted atomic.Int64
@@ -367,12 +367,12 @@ func storable(tok []byte) bool {
 	return len(tok) <= vectors.MaxWordBytes && !strings.ContainsAny(string(tok), " \t\r\n")
 }
 
-func countWords(ctx context.Context, c Corpus, tok *model.Tokenizer, o Options, counted *atomic.Int64) (*vocab, error) {
+func countWords(ctx context.Context, c Corpus, tok *token.Tokenizer, o Options, counted *atomic.Int64) (*vocab, error) {
 	type local struct {
 		counts          map[string]int64
 		records, tokens int64
 		reduce          int64
-		ts              model.Tokens
+		ts              token.Tokens
 	}
 	locals := make([]local, o.Jobs)
 	for k := range locals {
@@ -584,7 +584,7 @@ func (t *trainer) alpha(done int64) float64 {
 	return max(a, t.o.Alpha*minAlphaFraction)
 }
 
-func (t *trainer) run(ctx context.Context, c Corpus, tok *model.Tokenizer) error {
+func (t *trainer) run(ctx context.Context, c Corpus, tok *token.Tokenizer) error {
 	return pipeline(ctx, c, t.o.Jobs, func(k int, b *batch) error {
 		t.workers[k].batch(tok, b)
 		return nil
@@ -595,13 +595,13 @@ func (t *trainer) run(ctx context.Context, c Corpus, tok *model.Tokenizer) error
 type worker struct {
 	t     *trainer
 	rng   *rand.PCG
-	ts    model.Tokens
+	ts    token.Tokens
 	ids   []int32
 	negs  []int32
 	neu1e []float32
 }
 
-func (w *worker) batch(tok *model.Tokenizer, b *batch) {
+func (w *worker) batch(tok *token.Tokenizer, b *batch) {
 	t := w.t
 	start := 0
 	for _, end := range b.ends {
