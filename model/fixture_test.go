@@ -15,6 +15,7 @@ import (
 	"strings"
 	"testing"
 
+	"convtag/model/internal/kernel"
 	"convtag/model/token"
 )
 
@@ -393,8 +394,8 @@ func TestFixtureFoldMatchesFoldModel(t *testing.T) {
 				if r := ref.Fold[i].F32[j]; math.Abs(float64(x-r)) > 1e-6*(1+math.Abs(float64(r))) {
 					t.Fatalf("fold.%d[%d]: FoldModel %v, reference %v", i, j, x, r)
 				}
-				if got, want := F32ToF16(x), stHalf(float64(x)); got != want {
-					t.Fatalf("F32ToF16(%v) = %#04x, reference %#04x", x, got, want)
+				if got, want := kernel.F32ToF16(x), stHalf(float64(x)); got != want {
+					t.Fatalf("kernel.F32ToF16(%v) = %#04x, reference %#04x", x, got, want)
 				}
 			}
 		}

@@ -4,6 +4,7 @@ import (
 	"fmt"
 	"math"
 
+	"convtag/model/internal/kernel"
 	"convtag/model/token"
 )
 
@@ -17,7 +18,7 @@ import (
 // Predict or PredictRows call.
 type Predictor struct {
 	m      *Model
-	k      *kernels
+	k      *kernel.Set
 	tok    *token.Tokenizer
 	toks   token.Tokens
 	rows   []int32
@@ -38,6 +39,10 @@ type Predictor struct {
 	x  []float32   // the text's embedding rows, then zero rows
 }
 
+// KernelName names the kernel set this CPU and build run: "avx512",
+// "avx2" or "generic" (plain Go).
+func KernelName() string { return kernel.Active.Name }
+
 // NewPredictor returns a Predictor for m with its own scratch memory. It
 // panics if m.Fold is inconsistent with m's shape, which a loaded or
 // folded model never is.
@@ -48,7 +53,7 @@ func (m *Model) NewPredictor() *Predictor {
 	cfg := m.Config
 	p := &Predictor{
 		m:      m,
-		k:      activeKernels,
+		k:      kernel.Active,
 		tok:    m.TokenizerFor(),
 		feat:   make([]float32, cfg.Features()),
 		win:    make([]int32, cfg.Features()),
@@ -174,7 +179,7 @@ func (p *Predictor) forwardDirect(rows []int32) {
 		for pos := 0; pos < n; pos += 4 {
 			xs := x[pos*d:]
 			for c := range f {
-				p.k.dot4(wt[c*l:(c+1)*l], xs, d, out)
+				p.k.Dot4(wt[c*l:(c+1)*l], xs, d, out)
 				for j := range min(4, n-pos) {
 					if v := cv.B[c] + out[j]; v > mx[c] {
 						mx[c], win[c] = v, int32(pos+j)
@@ -190,13 +195,13 @@ func (p *Predictor) dense() {
 	in := p.feat
 	if h := p.m.Hidden; h != nil {
 		for o := range h.Out {
-			p.hid[o] = max(0, h.B[o]+p.k.dot(h.W[o*h.In:(o+1)*h.In], in))
+			p.hid[o] = max(0, h.B[o]+p.k.Dot(h.W[o*h.In:(o+1)*h.In], in))
 		}
 		in = p.hid
 	}
 	o := &p.m.Out
 	for c := range o.Out {
-		p.logits[c] = o.B[c] + p.k.dot(o.W[c*o.In:(c+1)*o.In], in)
+		p.logits[c] = o.B[c] + p.k.Dot(o.W[c*o.In:(c+1)*o.In], in)
 	}
 }
 

@@ -16,6 +16,7 @@ import (
 	"gonum.org/v1/gonum/blas"
 	"gonum.org/v1/gonum/blas/blas32"
 
+	"convtag/model/internal/kernel"
 	"convtag/model/token"
 )
 
@@ -100,10 +101,10 @@ func TestFoldedMatchesDirect(t *testing.T) {
 		m := fwModel(t, tc.cfg, 150, 7)
 		fm := fwFolded(m, false)
 		inputs := append(fwInputs(m, 300, 11), nil)
-		for _, k := range allKernels {
-			t.Run(tc.name+"/"+k.name, func(t *testing.T) {
+		for _, k := range kernel.All {
+			t.Run(tc.name+"/"+k.Name, func(t *testing.T) {
 				inputs := inputs
-				if k == &genericKernels && tc.cfg.Dim*tc.cfg.Filters > 2000 {
+				if k == kernel.Generic && tc.cfg.Dim*tc.cfg.Filters > 2000 {
 					inputs = inputs[:60] // the plain-Go direct path is slow
 				}
 				pd, pf := m.NewPredictor(), fm.NewPredictor()
@@ -161,16 +162,16 @@ func TestFoldedHalf(t *testing.T) {
 		for i, ft := range hm.Fold {
 			w := make([]float32, len(ft.F16))
 			for j, h := range ft.F16 {
-				w[j] = F16ToF32(h)
+				w[j] = kernel.F16ToF32(h)
 			}
 			wm.Fold[i] = FoldTable{Width: ft.Width, F32: w}
 		}
 		exact := fwFolded(m, false)
 		inputs := fwInputs(m, 300, 12)
-		for _, k := range allKernels {
-			t.Run(tc.name+"/"+k.name, func(t *testing.T) {
+		for _, k := range kernel.All {
+			t.Run(tc.name+"/"+k.Name, func(t *testing.T) {
 				inputs := inputs
-				if k == &genericKernels && tc.cfg.Dim*tc.cfg.Filters > 2000 {
+				if k == kernel.Generic && tc.cfg.Dim*tc.cfg.Filters > 2000 {
 					inputs = inputs[:60] // the plain-Go direct path is slow
 				}
 				ph, pw, pd := hm.NewPredictor(), wm.NewPredictor(), m.NewPredictor()
@@ -249,8 +250,8 @@ func fwHalfLogitBound(m *Model, rows []int32) float64 {
 func TestDirectMatchesGonum(t *testing.T) {
 	for _, tc := range fwConfigs {
 		m := fwModel(t, tc.cfg, 150, 9)
-		for _, k := range allKernels {
-			t.Run(tc.name+"/"+k.name, func(t *testing.T) {
+		for _, k := range kernel.All {
+			t.Run(tc.name+"/"+k.Name, func(t *testing.T) {
 				p := m.NewPredictor()
 				p.k = k
 				for _, rows := range fwInputs(m, 120, 13) {
@@ -477,7 +478,7 @@ func TestZeroAllocs(t *testing.T) {
 		models := map[string]*Model{"direct": m, "f32": fwFolded(m, false), "f16": fwFolded(m, true)}
 		rows := fwInputs(m, 60, 15)
 		for name, mm := range models {
-			for _, k := range allKernels {
+			for _, k := range kernel.All {
 				p := mm.NewPredictor()
 				p.k = k
 				for _, r := range rows {
@@ -485,10 +486,10 @@ func TestZeroAllocs(t *testing.T) {
 				}
 				i := 0
 				if a := testing.AllocsPerRun(100, func() { p.PredictRows(rows[i%len(rows)]); i++ }); a != 0 {
-					t.Errorf("%s/%s/%s: PredictRows allocates %v times", fwConfigs[ci].name, name, k.name, a)
+					t.Errorf("%s/%s/%s: PredictRows allocates %v times", fwConfigs[ci].name, name, k.Name, a)
 				}
 				if a := testing.AllocsPerRun(100, func() { p.Predict(text) }); a != 0 {
-					t.Errorf("%s/%s/%s: Predict allocates %v times", fwConfigs[ci].name, name, k.name, a)
+					t.Errorf("%s/%s/%s: Predict allocates %v times", fwConfigs[ci].name, name, k.Name, a)
 				}
 			}
 		}

@@ -9,6 +9,8 @@ import (
 
 	"sync"
 	"time"
+
+	"convtag/model/internal/kernel"
 )
 
 // Training defaults. Batch size 50, dropout 0.5 on the pooled features,
@@ -80,6 +82,10 @@ type TrainOptions struct {
 	// closed (for example a context's Done channel): Train then returns
 	// ErrStopped and leaves m's weights unspecified.
 	Stop <-chan struct{}
+
+	// kernels, if not nil, are the training kernels instead of
+	// kernel.Active (tests compare the sets).
+	kernels *kernel.Set
 }
 
 // EpochStats are one epoch's figures.
@@ -272,6 +278,9 @@ func newTrainer(m *Model, opt TrainOptions) *trainer {
 			t.cw[c] = float32(opt.ClassWeights[c])
 		}
 	}
+	if opt.kernels != nil {
+		t.p.kern = opt.kernels
+	}
 	t.st = newOptState(t.p, opt.Opt)
 	for range opt.Jobs {
 		t.ws = append(t.ws, newTrainWorker(t.p))
@@ -378,7 +387,7 @@ func (t *trainer) reduce(n int) {
 			lo, hi := k*len(dst)/parts, (k+1)*len(dst)/parts
 			copy(dst[lo:hi], t.ws[0].g.trDense()[ti][lo:hi])
 			for _, w := range t.ws[1:n] {
-				trAdd(dst[lo:hi], w.g.trDense()[ti][lo:hi])
+				trAdd(t.p.kern, dst[lo:hi], w.g.trDense()[ti][lo:hi])
 			}
 		}
 	})
@@ -386,7 +395,7 @@ func (t *trainer) reduce(n int) {
 	for _, w := range t.ws[:n] {
 		for si, r := range w.g.rows {
 			src := w.g.embRow(si, d)
-			trAdd(g.touch(r, d), src)
+			trAdd(t.p.kern, g.touch(r, d), src)
 		}
 	}
 }
@@ -504,6 +513,6 @@ func trMaxNorm(w []float32, in int, s float32) {
 	}
 }
 
-func trAdd(dst, src []float32) {
-	trAxpy(1, src, dst)
+func trAdd(k *kernel.Set, dst, src []float32) {
+	k.Axpy(1, src, dst)
 }

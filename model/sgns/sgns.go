@@ -13,6 +13,7 @@ import (
 	"sync/atomic"
 	"time"
 
+	"convtag/model/internal/kernel"
 	"convtag/model/token"
 	"convtag/model/vectors"
 )
@@ -668,6 +669,7 @@ func (w *worker) sentence(ids []int32, alpha float32) {
 // word, the reverse of the paper's wording; over a window the two visit
 // the same pairs. neu1e is scratch of length d.
 func step(syn1 []float32, d int, l1, neu1e []float32, centre int32, negs []int32, alpha float32) {
+	kern := kernel.Active
 	clear(neu1e)
 	for k := -1; k < len(negs); k++ {
 		target, label := centre, float32(1)
@@ -675,11 +677,11 @@ func step(syn1 []float32, d int, l1, neu1e []float32, centre int32, negs []int32
 			target, label = negs[k], 0
 		}
 		l2 := syn1[int(target)*d : (int(target)+1)*d]
-		g := (label - sigmoid(dot(l1, l2))) * alpha
-		axpy(g, l2, neu1e)
-		axpy(g, l1, l2)
+		g := (label - sigmoid(kern.Dot(l1, l2))) * alpha
+		kern.Axpy(g, l2, neu1e)
+		kern.Axpy(g, l1, l2)
 	}
-	axpy(1, neu1e, l1)
+	kern.Axpy(1, neu1e, l1)
 }
 
 // sigmoid is the logistic function, exact to float32 rounding (the
