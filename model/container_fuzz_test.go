@@ -82,7 +82,7 @@ func FuzzLoad(f *testing.F) {
 			t.Fatalf("row %d of %d", r, m.Rows())
 		}
 		var buf bytes.Buffer
-		if err := m.Encode(&buf); err != nil {
+		if err := m.Encode(&buf, SaveOptions{}); err != nil {
 			// Only what Load leaves for Verify may stop Encode.
 			if !errors.Is(err, ErrNotFinite) && !errors.Is(err, ErrVocab) {
 				t.Fatalf("re-encoding a loaded model: %v", err)
@@ -145,7 +145,7 @@ func stHeader(meta string, es []stEntry) string {
 // stSeeds returns the named seed inputs of both fuzz targets.
 func stSeeds(t testing.TB) (container, load map[string][]byte) {
 	var buf bytes.Buffer
-	if err := stTinyModel(t).Encode(&buf); err != nil {
+	if err := stTinyModel(t).Encode(&buf, SaveOptions{}); err != nil {
 		t.Fatal(err)
 	}
 	valid := buf.Bytes()

@@ -56,7 +56,7 @@ func TestExplainExact(t *testing.T) {
 			}
 			text := []byte(strings.Join(tw, " "))
 			var ts token.Tokens
-			n = len(tokenStrings(m.TokenizerFor(), &ts, string(text)))
+			n = len(tokenStrings(m.Tokenizer(), &ts, string(text)))
 			probs, ex := direct.Explain(text, -1, 0)
 			if best, _ := argmax32(probs); ex.Label != best {
 				t.Fatalf("explained label %d, most probable %d", ex.Label, best)
@@ -226,7 +226,7 @@ func TestExplainSpam(t *testing.T) {
 	m, base, dev := demoModel(t)
 	spam := slices.Index(m.Labels, "spam")
 	p := m.NewPredictor()
-	tok := m.TokenizerFor()
+	tok := m.Tokenizer()
 	var ts token.Tokens
 	rng := rand.New(rand.NewPCG(2, 2))
 	tagged, judged, control := 0, 0, 0

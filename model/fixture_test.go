@@ -175,11 +175,11 @@ func TestHalfReference(t *testing.T) {
 func TestFixture(t *testing.T) {
 	m := stFixtureModel(t)
 	var buf bytes.Buffer
-	if err := m.Encode(&buf); err != nil {
+	if err := m.Encode(&buf, SaveOptions{}); err != nil {
 		t.Fatal(err)
 	}
 	if stUpdating() {
-		if err := m.Save(fixturePath); err != nil {
+		if err := m.Save(fixturePath, SaveOptions{}); err != nil {
 			t.Fatal(err)
 		}
 	}

@@ -54,7 +54,7 @@ func (m *Model) NewPredictor() *Predictor {
 	p := &Predictor{
 		m:      m,
 		k:      kernel.Active,
-		tok:    m.TokenizerFor(),
+		tok:    m.Tokenizer(),
 		feat:   make([]float32, cfg.Features()),
 		win:    make([]int32, cfg.Features()),
 		hid:    make([]float32, cfg.Hidden),
@@ -62,7 +62,7 @@ func (m *Model) NewPredictor() *Predictor {
 		probs:  make([]float32, m.Out.Out),
 		acc:    make([]float32, cfg.Filters),
 	}
-	limit := m.Tokenizer.Limit()
+	limit := m.TokenSettings.Limit()
 	p.rows = make([]int32, 0, limit)
 	p.last = make([]int32, 0, limit)
 	return p
@@ -160,7 +160,7 @@ func (p *Predictor) forwardDirect(rows []int32) {
 	// text for the last block's windows: window p is x[p*d : (p+w)*d].
 	need := (n + 3 + m.Config.MaxWidth()) * d
 	if cap(p.x) < need {
-		p.x = make([]float32, max(need, (m.Tokenizer.Limit()+3+m.Config.MaxWidth())*d))
+		p.x = make([]float32, max(need, (m.TokenSettings.Limit()+3+m.Config.MaxWidth())*d))
 	}
 	x := p.x[:need]
 	for i, r := range rows {

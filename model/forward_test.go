@@ -419,7 +419,7 @@ func TestPredictTokenizes(t *testing.T) {
 	p := m.NewPredictor()
 	for _, s := range []string{"w1 w2 w3", "w7 unknownword w49, w0!", "ferry to Kelloway at 9"} {
 		var ts token.Tokens
-		m.TokenizerFor().Tokenize(&ts, []byte(s))
+		m.Tokenizer().Tokenize(&ts, []byte(s))
 		rows := make([]int32, ts.Len())
 		for i := range rows {
 			rows[i] = m.Vocab.Row(ts.At(i))
@@ -561,7 +561,7 @@ func TestAgainstTorch(t *testing.T) {
 	for i, tc := range cases {
 		m := fwFolded(fwModel(t, tc.cfg, 300, 21), false)
 		path := filepath.Join(dir, fmt.Sprintf("model%d.safetensors", i))
-		if err := m.Save(path); err != nil {
+		if err := m.Save(path, SaveOptions{}); err != nil {
 			t.Fatal(err)
 		}
 		models = append(models, m)

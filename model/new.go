@@ -35,11 +35,11 @@ func New(cfg Config, tok token.Settings, labels []string, words []string, seed u
 		}
 	}
 	m := &Model{
-		Config:    cfg,
-		Tokenizer: tok,
-		Labels:    slices.Clone(labels),
-		Vocab:     NewVocab(words, cfg.Buckets),
-		Meta:      map[string]string{},
+		Config:        cfg,
+		TokenSettings: tok,
+		Labels:        slices.Clone(labels),
+		Vocab:         NewVocab(words, cfg.Buckets),
+		Meta:          map[string]string{},
 	}
 	m.Config.Widths = slices.Clone(cfg.Widths)
 	d, f := cfg.Dim, cfg.Filters
@@ -81,10 +81,12 @@ func firstDuplicate(s []string) int {
 	return -1
 }
 
-// TokenizerFor returns the model's tokenizer.
-func (m *Model) TokenizerFor() *token.Tokenizer {
+// Tokenizer returns the model's tokenizer, built from TokenSettings when
+// the model was made (New) or opened (Open, Load); for a Model put together
+// by hand, a new one each call, so the shared Model is never written.
+func (m *Model) Tokenizer() *token.Tokenizer {
 	if m.tok == nil {
-		m.tok = token.New(m.Tokenizer)
+		return token.New(m.TokenSettings)
 	}
 	return m.tok
 }

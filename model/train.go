@@ -11,6 +11,7 @@ import (
 	"time"
 
 	"convtag/model/internal/kernel"
+	"convtag/model/metrics"
 )
 
 // Training defaults. Batch size 50, dropout 0.5 on the pooled features,
@@ -416,48 +417,7 @@ func (t *trainer) evaluate(ex []Example) (acc, macroF1 float64) {
 	for i, e := range ex {
 		gold[i] = e.Label
 	}
-	return Accuracy(gold, pred), MacroF1(gold, pred, len(t.m.Labels))
-}
-
-// Accuracy is the fraction of pred equal to gold.
-func Accuracy(gold, pred []int) float64 {
-	if len(gold) == 0 {
-		return 0
-	}
-	n := 0
-	for i := range gold {
-		if gold[i] == pred[i] {
-			n++
-		}
-	}
-	return float64(n) / float64(len(gold))
-}
-
-// MacroF1 is the unweighted mean over the labels that occur in gold or pred
-// of each label's F1 = 2 TP / (2 TP + FP + FN).
-func MacroF1(gold, pred []int, labels int) float64 {
-	tp, fp, fn := make([]int, labels), make([]int, labels), make([]int, labels)
-	for i := range gold {
-		if gold[i] == pred[i] {
-			tp[gold[i]]++
-		} else {
-			fn[gold[i]]++
-			fp[pred[i]]++
-		}
-	}
-	var sum float64
-	n := 0
-	for c := range labels {
-		if tp[c]+fp[c]+fn[c] == 0 {
-			continue
-		}
-		sum += 2 * float64(tp[c]) / float64(2*tp[c]+fp[c]+fn[c])
-		n++
-	}
-	if n == 0 {
-		return 0
-	}
-	return sum / float64(n)
+	return metrics.Accuracy(gold, pred), metrics.MacroF1(metrics.PerLabel(metrics.Confusion(gold, pred, len(t.m.Labels)), nil))
 }
 
 func trArgmax(x []float32) int {

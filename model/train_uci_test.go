@@ -16,6 +16,7 @@ import (
 	"time"
 
 	"convtag/model/internal/uci"
+	"convtag/model/metrics"
 	"convtag/model/nb"
 	"convtag/model/token"
 )
@@ -253,7 +254,7 @@ func uciFolds(t *testing.T, texts []string, labels []int, folds int) []uciFold {
 			gold = append(gold, labels[i])
 			pred = append(pred, b.Predict(tokens[i]))
 		}
-		f.nbAcc = Accuracy(gold, pred)
+		f.nbAcc = metrics.Accuracy(gold, pred)
 		out = append(out, f)
 	}
 	return out
@@ -286,7 +287,7 @@ func uciTrainGo(t *testing.T, f uciFold, k, jobs int) (float64, int) {
 		gold = append(gold, e.Label)
 		pred = append(pred, trArgmax(w.forward(p, e.Rows, 0, 0, 0)))
 	}
-	return Accuracy(gold, pred), res.EpochsRun
+	return metrics.Accuracy(gold, pred), res.EpochsRun
 }
 
 // torchInput is testdata/torch_train.py's input: the recipe and the folds

@@ -395,7 +395,7 @@ func runEval(a *app, f *evalFlags, args []string) error {
 			return err
 		}
 		if base != nil {
-			tok := m.TokenizerFor()
+			tok := m.Tokenizer()
 			var ts token.Tokens
 			bprobs = make([][]float32, len(s.texts))
 			for i, t := range s.texts {
@@ -465,7 +465,7 @@ func (f *evalFlags) baseline(a *app, m *model.Model) (*nb.Model, string, error) 
 			fmt.Fprintf(a.stderr, "convtag: warning: %d baseline training records have labels the model does not know and are not used: %s\n",
 				len(set.Records)-len(s.gold), unknownString(s.unknown))
 		}
-		tok := m.TokenizerFor()
+		tok := m.Tokenizer()
 		var ts token.Tokens
 		docs := make([][]string, len(s.texts))
 		for i, t := range s.texts {

@@ -27,7 +27,7 @@ func evalVariant(t *testing.T, dir, name string, edit func(m *model.Model)) stri
 	}
 	edit(m)
 	p := filepath.Join(dir, name)
-	if err := m.Save(p); err != nil {
+	if err := m.Save(p, model.SaveOptions{}); err != nil {
 		t.Fatal(err)
 	}
 	return p
@@ -142,7 +142,7 @@ func TestEvalErrorLinesCapped(t *testing.T) {
 		t.Fatal(err)
 	}
 	many := filepath.Join(dir, "many.safetensors")
-	if err := m.Save(many); err != nil {
+	if err := m.Save(many, model.SaveOptions{}); err != nil {
 		t.Fatal(err)
 	}
 	var in bytes.Buffer

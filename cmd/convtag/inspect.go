@@ -78,7 +78,7 @@ windows.`,
 				}
 				return enc.Encode(in)
 			}
-			if err := in.WriteText(a.stdout); err != nil {
+			if err := writeInfoText(a.stdout, &in); err != nil {
 				return err
 			}
 			if verify {

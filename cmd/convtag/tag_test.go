@@ -32,7 +32,7 @@ func tagModel(t testing.TB, dir, name string, labels []string, seed uint64) stri
 	}
 	model.FoldModel(m, false)
 	p := filepath.Join(dir, name)
-	if err := m.Save(p); err != nil {
+	if err := m.Save(p, model.SaveOptions{}); err != nil {
 		t.Fatal(err)
 	}
 	return p
@@ -427,7 +427,7 @@ func BenchmarkTagVsJq(b *testing.B) {
 	}
 	model.FoldModel(m, false)
 	mp := filepath.Join(dir, "d300.safetensors")
-	if err := m.Save(mp); err != nil {
+	if err := m.Save(mp, model.SaveOptions{}); err != nil {
 		b.Fatal(err)
 	}
 	const n = 200_000

@@ -21,6 +21,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"convtag/model"
+	"convtag/model/metrics"
 	"convtag/model/nb"
 	"convtag/model/token"
 	"convtag/model/vectors"
@@ -409,7 +410,7 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 	}
 	bs := baselineScores{Kind: "multinomial naive Bayes, lowercase unigrams+bigrams, Laplace smoothing"}
 	if len(dev) > 0 {
-		bs.DevAccuracy, bs.DevMacroF1 = model.Accuracy(gold, pred), model.MacroF1(gold, pred, len(labels))
+		bs.DevAccuracy, bs.DevMacroF1 = metrics.Accuracy(gold, pred), metrics.MacroF1(metrics.PerLabel(metrics.Confusion(gold, pred, len(labels)), nil))
 	}
 	// The baseline is always stored, whatever its size (it grows with the
 	// distinct unigrams and bigrams): it is a byte tensor that opening
@@ -450,7 +451,7 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 	if ctx.Err() != nil {
 		return withCode(exitFailure, errInterrupted)
 	}
-	if err := m.Save(f.output); err != nil {
+	if err := m.Save(f.output, model.SaveOptions{Version: version}); err != nil {
 		return withCode(exitFailure, fmt.Errorf("train: %w", err))
 	}
 	w := a.stdout

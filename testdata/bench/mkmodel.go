@@ -69,5 +69,5 @@ func run() error {
 		return err
 	}
 	model.FoldModel(m, *half)
-	return m.Save(*out)
+	return m.Save(*out, model.SaveOptions{})
 }
