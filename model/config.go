@@ -10,10 +10,9 @@ const FormatVersion = 1
 // filters each) follows Kim (2014), "Convolutional Neural Networks for
 // Sentence Classification", EMNLP.
 const (
-	DefaultDim       = 128
-	DefaultFilters   = 100
-	DefaultBuckets   = 10000
-	DefaultMaxTokens = 400
+	DefaultDim     = 128
+	DefaultFilters = 100
+	DefaultBuckets = 10000
 )
 
 // DefaultWidths are the convolution window widths of a new model.
@@ -75,38 +74,4 @@ func (c Config) Validate() error {
 		}
 	}
 	return nil
-}
-
-// TokenizerSettings say how text is cut into tokens. They are stored in the
-// model file so that training and tagging cut text identically.
-type TokenizerSettings struct {
-	// KeepPunct keeps punctuation tokens; by default they are dropped.
-	KeepPunct bool `json:"keep_punct"`
-	// MaxTokens caps the tokens taken from one record (the rest are
-	// ignored); 0 means DefaultMaxTokens.
-	MaxTokens int `json:"max_tokens"`
-	// NoPlaceholders keeps URLs, e-mail addresses, handles and numbers as
-	// ordinary tokens instead of replacing them by placeholders.
-	NoPlaceholders bool `json:"no_placeholders"`
-}
-
-// MaxTokensLimit is the largest max_tokens a model file may set: a
-// predictor sizes its buffers from it, so a file must not be able to ask
-// for more memory than a record of that many tokens needs.
-const MaxTokensLimit = 1 << 20
-
-// Validate reports the first setting out of range, naming its key.
-func (s TokenizerSettings) Validate() error {
-	if s.MaxTokens < 0 || s.MaxTokens > MaxTokensLimit {
-		return fmt.Errorf("max_tokens %d out of range 0..%d", s.MaxTokens, MaxTokensLimit)
-	}
-	return nil
-}
-
-// Limit is the effective token cap.
-func (s TokenizerSettings) Limit() int {
-	if s.MaxTokens <= 0 {
-		return DefaultMaxTokens
-	}
-	return s.MaxTokens
 }

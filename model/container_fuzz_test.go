@@ -12,6 +12,8 @@ import (
 	"strconv"
 	"strings"
 	"testing"
+
+	"convtag/model/token"
 )
 
 // The seed corpora live under testdata/fuzz/Fuzz*/ and are written by
@@ -80,7 +82,7 @@ func FuzzLoad(f *testing.F) {
 			t.Fatalf("row %d of %d", r, m.Rows())
 		}
 		var buf bytes.Buffer
-		if err := m.Encode(&buf); err != nil {
+		if err := m.Encode(&buf, SaveOptions{}); err != nil {
 			// Only what Load leaves for Verify may stop Encode.
 			if !errors.Is(err, ErrNotFinite) && !errors.Is(err, ErrVocab) {
 				t.Fatalf("re-encoding a loaded model: %v", err)
@@ -108,7 +110,7 @@ func FuzzLoad(f *testing.F) {
 
 // stTinyModel is the small model the fuzz seeds start from.
 func stTinyModel(t testing.TB) *Model {
-	m, err := New(Config{Dim: 2, Widths: []int{1, 2}, Filters: 2, Hidden: 2, Buckets: 2}, TokenizerSettings{},
+	m, err := New(Config{Dim: 2, Widths: []int{1, 2}, Filters: 2, Hidden: 2, Buckets: 2}, token.Settings{},
 		[]string{"schedule", "spam"}, []string{"ferry", "tide", "pier"}, 3)
 	if err != nil {
 		t.Fatal(err)
@@ -143,7 +145,7 @@ func stHeader(meta string, es []stEntry) string {
 // stSeeds returns the named seed inputs of both fuzz targets.
 func stSeeds(t testing.TB) (container, load map[string][]byte) {
 	var buf bytes.Buffer
-	if err := stTinyModel(t).Encode(&buf); err != nil {
+	if err := stTinyModel(t).Encode(&buf, SaveOptions{}); err != nil {
 		t.Fatal(err)
 	}
 	valid := buf.Bytes()

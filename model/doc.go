@@ -1,4 +1,4 @@
-// Package model owns the network: the tokenizer, the vocabulary, the
+// Package model owns the network: the vocabulary, the
 // safetensors model file, the forward pass (direct and folded) and training.
 //
 // It is pure computation. It must not read or write streams of records, and
@@ -29,5 +29,5 @@ package model
 //
 // __metadata__ (string values): format "convtag", format_version "1",
 // labels (JSON array), config (JSON Config), tokenizer (JSON
-// TokenizerSettings), training (JSON summary, from train), checksum
+// token.Settings), training (JSON summary, from train), checksum
 // "sha256:<hex of the buffer>", created_by.

@@ -12,6 +12,7 @@ import (
 	"testing"
 
 	"convtag/model/nb"
+	"convtag/model/token"
 )
 
 // TestExplainExact checks that the windows' scores and the bias add up to
@@ -23,7 +24,7 @@ func TestExplainExact(t *testing.T) {
 	words := strings.Fields("the ferry to skerrow leaves at noon from pier two ticket refund lost bag blue umbrella thanks crew")
 	for _, hidden := range []int{0, 7} {
 		cfg := Config{Dim: 8, Widths: []int{2, 3, 4}, Filters: 6, Hidden: hidden, Buckets: 11}
-		m, err := New(cfg, TokenizerSettings{}, []string{"a", "b", "c"}, words, 3)
+		m, err := New(cfg, token.Settings{}, []string{"a", "b", "c"}, words, 3)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -54,8 +55,8 @@ func TestExplainExact(t *testing.T) {
 				tw = append(tw, "unknownword")
 			}
 			text := []byte(strings.Join(tw, " "))
-			var ts Tokens
-			n = len(tokenStrings(m.TokenizerFor(), &ts, string(text)))
+			var ts token.Tokens
+			n = len(tokenStrings(m.Tokenizer(), &ts, string(text)))
 			probs, ex := direct.Explain(text, -1, 0)
 			if best, _ := argmax32(probs); ex.Label != best {
 				t.Fatalf("explained label %d, most probable %d", ex.Label, best)
@@ -173,13 +174,13 @@ func demoModel(t *testing.T) (*Model, *nb.Model, []demoRecord) {
 			}
 		}
 		slices.Sort(labels)
-		tok := NewTokenizer(TokenizerSettings{})
-		var ts Tokens
+		tok := token.New(token.Settings{})
+		var ts token.Tokens
 		counts := map[string]int{}
 		for _, r := range train {
 			CountTokens(counts, tok, &ts, []byte(r.Text))
 		}
-		m, err := New(Config{Dim: 32, Widths: []int{3, 4, 5}, Filters: 32, Buckets: 200}, TokenizerSettings{}, labels, BuildWords(counts, 2, 0), 1)
+		m, err := New(Config{Dim: 32, Widths: []int{3, 4, 5}, Filters: 32, Buckets: 200}, token.Settings{}, labels, BuildWords(counts, 2, 0), 1)
 		if err != nil {
 			d.err = err
 			return
@@ -207,7 +208,7 @@ func demoModel(t *testing.T) (*Model, *nb.Model, []demoRecord) {
 	return d.m, d.base, d.dev
 }
 
-func tokenStrings(tok *Tokenizer, ts *Tokens, s string) []string {
+func tokenStrings(tok *token.Tokenizer, ts *token.Tokens, s string) []string {
 	tok.Tokenize(ts, []byte(s))
 	var out []string
 	for i := range ts.Len() {
@@ -225,8 +226,8 @@ func TestExplainSpam(t *testing.T) {
 	m, base, dev := demoModel(t)
 	spam := slices.Index(m.Labels, "spam")
 	p := m.NewPredictor()
-	tok := m.TokenizerFor()
-	var ts Tokens
+	tok := m.Tokenizer()
+	var ts token.Tokens
 	rng := rand.New(rand.NewPCG(2, 2))
 	tagged, judged, control := 0, 0, 0
 	for _, r := range dev {
@@ -266,7 +267,7 @@ func TestExplainSpam(t *testing.T) {
 func TestExplainRemoval(t *testing.T) {
 	m, _, dev := demoModel(t)
 	p := m.NewPredictor()
-	var ts Tokens
+	var ts token.Tokens
 	rng := rand.New(rand.NewPCG(4, 4))
 	n, lowered := 0, 0
 	var dropTop, dropRand float64

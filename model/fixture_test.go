@@ -14,6 +14,9 @@ import (
 	"path/filepath"
 	"strings"
 	"testing"
+
+	"convtag/model/internal/kernel"
+	"convtag/model/token"
 )
 
 // The -update flag rewrites golden files. Another test file of the package
@@ -48,7 +51,7 @@ var stFixtureWords = strings.Fields(`the a to at from is on when my of
 func stFixtureModel(t testing.TB) *Model {
 	t.Helper()
 	cfg := Config{Dim: 16, Widths: []int{3, 4, 5}, Filters: 8, Buckets: 64}
-	m, err := New(cfg, TokenizerSettings{}, []string{"schedule", "tickets", "spam"}, stFixtureWords, 20261201)
+	m, err := New(cfg, token.Settings{}, []string{"schedule", "tickets", "spam"}, stFixtureWords, 20261201)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -172,11 +175,11 @@ func TestHalfReference(t *testing.T) {
 func TestFixture(t *testing.T) {
 	m := stFixtureModel(t)
 	var buf bytes.Buffer
-	if err := m.Encode(&buf); err != nil {
+	if err := m.Encode(&buf, SaveOptions{}); err != nil {
 		t.Fatal(err)
 	}
 	if stUpdating() {
-		if err := m.Save(fixturePath); err != nil {
+		if err := m.Save(fixturePath, SaveOptions{}); err != nil {
 			t.Fatal(err)
 		}
 	}
@@ -391,8 +394,8 @@ func TestFixtureFoldMatchesFoldModel(t *testing.T) {
 				if r := ref.Fold[i].F32[j]; math.Abs(float64(x-r)) > 1e-6*(1+math.Abs(float64(r))) {
 					t.Fatalf("fold.%d[%d]: FoldModel %v, reference %v", i, j, x, r)
 				}
-				if got, want := F32ToF16(x), stHalf(float64(x)); got != want {
-					t.Fatalf("F32ToF16(%v) = %#04x, reference %#04x", x, got, want)
+				if got, want := kernel.F32ToF16(x), stHalf(float64(x)); got != want {
+					t.Fatalf("kernel.F32ToF16(%v) = %#04x, reference %#04x", x, got, want)
 				}
 			}
 		}

@@ -2,9 +2,10 @@ package model
 
 import (
 	"fmt"
-	"math"
 	"runtime"
 	"sync"
+
+	"convtag/model/internal/kernel"
 )
 
 // FoldModel fills m.Fold with the folded convolution tables, replacing any
@@ -27,7 +28,7 @@ func FoldModel(m *Model, half bool) {
 	cfg := m.Config
 	d, f := cfg.Dim, cfg.Filters
 	rows := m.Rows()
-	k := activeKernels
+	k := kernel.Active
 	folds := make([]FoldTable, len(m.Convs))
 	for i, cv := range m.Convs {
 		w := cv.Width
@@ -40,7 +41,7 @@ func FoldModel(m *Model, half bool) {
 				e := m.Emb[r*d : (r+4)*d]
 				for tap := range w {
 					for c := range f {
-						k.dot4(wt[(c*w+tap)*d:(c*w+tap+1)*d], e, d, &out)
+						k.Dot4(wt[(c*w+tap)*d:(c*w+tap+1)*d], e, d, &out)
 						for j, v := range out {
 							t32[((r+j)*w+tap)*f+c] = v
 						}
@@ -51,7 +52,7 @@ func FoldModel(m *Model, half bool) {
 				e := m.Emb[r*d : (r+1)*d]
 				for tap := range w {
 					for c := range f {
-						t32[(r*w+tap)*f+c] = k.dot(wt[(c*w+tap)*d:(c*w+tap+1)*d], e)
+						t32[(r*w+tap)*f+c] = k.Dot(wt[(c*w+tap)*d:(c*w+tap+1)*d], e)
 					}
 				}
 			}
@@ -61,7 +62,7 @@ func FoldModel(m *Model, half bool) {
 			folds[i].F16 = make([]uint16, len(t32))
 			parallelRows(rows, func(lo, hi int) {
 				for j := lo * w * f; j < hi*w*f; j++ {
-					folds[i].F16[j] = F32ToF16(t32[j])
+					folds[i].F16[j] = kernel.F32ToF16(t32[j])
 				}
 			})
 		} else {
@@ -134,67 +135,9 @@ func (p *Predictor) forwardFolded(rows []int32, withWin bool) {
 		}
 		b := p.m.Convs[i].B
 		if t.F16 != nil {
-			p.k.foldF16(t.F16, t.Width, f, rows, b, mx, win, p.acc)
+			p.k.FoldF16(t.F16, t.Width, f, rows, b, mx, win, p.acc)
 		} else {
-			p.k.foldF32(t.F32, t.Width, f, rows, b, mx, win, p.acc)
+			p.k.FoldF32(t.F32, t.Width, f, rows, b, mx, win, p.acc)
 		}
 	}
-}
-
-// F32ToF16 converts x to IEEE 754 binary16 bits, rounding to nearest with
-// ties to even (the standard's default rounding). Values too large for half
-// precision become infinities; NaNs stay NaNs (quiet, sign and the top
-// payload bits kept).
-func F32ToF16(x float32) uint16 {
-	b := math.Float32bits(x)
-	sign := uint16(b>>16) & 0x8000
-	exp := int(b>>23) & 0xff
-	man := b & 0x7fffff
-	if exp == 0xff {
-		if man == 0 {
-			return sign | 0x7c00
-		}
-		return sign | 0x7e00 | uint16(man>>13)
-	}
-	e := exp - 127 + 15 // biased half exponent
-	if e >= 0x1f {
-		return sign | 0x7c00
-	}
-	if e <= 0 {
-		// Subnormal half (or zero): the value is M·2^(exp-150) with M the
-		// 24-bit significand, and a half subnormal counts units of 2^-24.
-		if e < -10 {
-			return sign // below half the smallest subnormal
-		}
-		mm := man | 0x800000
-		s := uint(14 - e)
-		h := mm >> s
-		rem, half := mm&(1<<s-1), uint32(1)<<(s-1)
-		if rem > half || rem == half && h&1 == 1 {
-			h++ // may carry into the smallest normal, which is right
-		}
-		return sign | uint16(h)
-	}
-	h := uint32(e)<<10 | man>>13
-	rem := man & 0x1fff
-	if rem > 0x1000 || rem == 0x1000 && h&1 == 1 {
-		h++ // may carry into the exponent, up to infinity, which is right
-	}
-	return sign | uint16(h)
-}
-
-// F16ToF32 widens IEEE 754 binary16 bits to float32 exactly.
-func F16ToF32(h uint16) float32 {
-	sign := uint32(h&0x8000) << 16
-	o := uint32(h&0x7fff) << 13 // exponent and fraction in place, exponent rebias pending
-	switch o & 0x0f800000 {
-	case 0x0f800000: // infinity or NaN: exponent 31 becomes 255
-		o += (255 - 31) << 23
-	case 0: // zero or subnormal: fraction·2^-24, exact in float32
-		f := math.Float32frombits(o+113<<23) - math.Float32frombits(113<<23)
-		return math.Float32frombits(math.Float32bits(f) | sign)
-	default:
-		o += (127 - 15) << 23
-	}
-	return math.Float32frombits(o | sign)
 }

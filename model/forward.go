@@ -3,6 +3,9 @@ package model
 import (
 	"fmt"
 	"math"
+
+	"convtag/model/internal/kernel"
+	"convtag/model/token"
 )
 
 // Predictor runs the forward pass of one Model. It holds all per-call
@@ -15,9 +18,9 @@ import (
 // Predict or PredictRows call.
 type Predictor struct {
 	m      *Model
-	k      *kernels
-	tok    *Tokenizer
-	toks   Tokens
+	k      *kernel.Set
+	tok    *token.Tokenizer
+	toks   token.Tokens
 	rows   []int32
 	direct bool
 	last   []int32 // the last folded text, for Winners
@@ -36,6 +39,10 @@ type Predictor struct {
 	x  []float32   // the text's embedding rows, then zero rows
 }
 
+// KernelName names the kernel set this CPU and build run: "avx512",
+// "avx2" or "generic" (plain Go).
+func KernelName() string { return kernel.Active.Name }
+
 // NewPredictor returns a Predictor for m with its own scratch memory. It
 // panics if m.Fold is inconsistent with m's shape, which a loaded or
 // folded model never is.
@@ -46,8 +53,8 @@ func (m *Model) NewPredictor() *Predictor {
 	cfg := m.Config
 	p := &Predictor{
 		m:      m,
-		k:      activeKernels,
-		tok:    m.TokenizerFor(),
+		k:      kernel.Active,
+		tok:    m.Tokenizer(),
 		feat:   make([]float32, cfg.Features()),
 		win:    make([]int32, cfg.Features()),
 		hid:    make([]float32, cfg.Hidden),
@@ -55,7 +62,7 @@ func (m *Model) NewPredictor() *Predictor {
 		probs:  make([]float32, m.Out.Out),
 		acc:    make([]float32, cfg.Filters),
 	}
-	limit := m.Tokenizer.Limit()
+	limit := m.TokenSettings.Limit()
 	p.rows = make([]int32, 0, limit)
 	p.last = make([]int32, 0, limit)
 	return p
@@ -153,7 +160,7 @@ func (p *Predictor) forwardDirect(rows []int32) {
 	// text for the last block's windows: window p is x[p*d : (p+w)*d].
 	need := (n + 3 + m.Config.MaxWidth()) * d
 	if cap(p.x) < need {
-		p.x = make([]float32, max(need, (m.Tokenizer.Limit()+3+m.Config.MaxWidth())*d))
+		p.x = make([]float32, max(need, (m.TokenSettings.Limit()+3+m.Config.MaxWidth())*d))
 	}
 	x := p.x[:need]
 	for i, r := range rows {
@@ -172,7 +179,7 @@ func (p *Predictor) forwardDirect(rows []int32) {
 		for pos := 0; pos < n; pos += 4 {
 			xs := x[pos*d:]
 			for c := range f {
-				p.k.dot4(wt[c*l:(c+1)*l], xs, d, out)
+				p.k.Dot4(wt[c*l:(c+1)*l], xs, d, out)
 				for j := range min(4, n-pos) {
 					if v := cv.B[c] + out[j]; v > mx[c] {
 						mx[c], win[c] = v, int32(pos+j)
@@ -188,13 +195,13 @@ func (p *Predictor) dense() {
 	in := p.feat
 	if h := p.m.Hidden; h != nil {
 		for o := range h.Out {
-			p.hid[o] = max(0, h.B[o]+p.k.dot(h.W[o*h.In:(o+1)*h.In], in))
+			p.hid[o] = max(0, h.B[o]+p.k.Dot(h.W[o*h.In:(o+1)*h.In], in))
 		}
 		in = p.hid
 	}
 	o := &p.m.Out
 	for c := range o.Out {
-		p.logits[c] = o.B[c] + p.k.dot(o.W[c*o.In:(c+1)*o.In], in)
+		p.logits[c] = o.B[c] + p.k.Dot(o.W[c*o.In:(c+1)*o.In], in)
 	}
 }
 

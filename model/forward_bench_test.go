@@ -6,6 +6,9 @@ import (
 	"runtime"
 	"sync"
 	"testing"
+
+	"convtag/model/internal/kernel"
+	"convtag/model/token"
 )
 
 // Forward-pass benchmarks: one record per op, 20 and 60 tokens, d = 128 and
@@ -54,7 +57,7 @@ func (s *benchSet) model(b *testing.B) *Model {
 		for i := range words {
 			words[i] = fmt.Sprintf("word%d", i)
 		}
-		s.m, s.buildErr = New(cfg, TokenizerSettings{}, []string{"arrivals", "delays", "tickets"}, words, 1)
+		s.m, s.buildErr = New(cfg, token.Settings{}, []string{"arrivals", "delays", "tickets"}, words, 1)
 	})
 	if s.buildErr != nil {
 		b.Fatal(s.buildErr)
@@ -94,9 +97,13 @@ func (s *benchSet) recordsOf(m *Model, n int) [][]int32 {
 	return recs
 }
 
-// noPrefetch is where a benchmark turns the fold kernels' prefetching
-// off; nil where the kernels do not prefetch.
-var noPrefetch func() (restore func())
+// noPrefetch turns the assembly fold kernels' prefetching off until
+// restore is called.
+func noPrefetch() (restore func()) {
+	old := kernel.Prefetch
+	kernel.Prefetch = 0
+	return func() { kernel.Prefetch = old }
+}
 
 func BenchmarkForward(b *testing.B) {
 	for _, d := range []int{128, 300} {
@@ -144,7 +151,7 @@ func BenchmarkForward(b *testing.B) {
 
 type benchVariant struct {
 	name string
-	k    *kernels
+	k    *kernel.Set
 	nopf bool
 }
 
@@ -152,11 +159,11 @@ type benchVariant struct {
 // the fastest one once more without prefetching.
 func benchVariants(path string) []benchVariant {
 	var vs []benchVariant
-	for _, k := range allKernels {
-		vs = append(vs, benchVariant{name: k.name, k: k})
+	for _, k := range kernel.All {
+		vs = append(vs, benchVariant{name: k.Name, k: k})
 	}
-	if path != "direct" && noPrefetch != nil && activeKernels != &genericKernels {
-		vs = append(vs, benchVariant{name: activeKernels.name + "-noprefetch", k: activeKernels, nopf: true})
+	if path != "direct" && kernel.Active != kernel.Generic {
+		vs = append(vs, benchVariant{name: kernel.Active.Name + "-noprefetch", k: kernel.Active, nopf: true})
 	}
 	return vs
 }
@@ -178,10 +185,10 @@ func BenchmarkFoldHot(b *testing.B) {
 	}
 	for _, half := range []bool{false, true} {
 		m := s.folded(b, half)
-		for _, k := range allKernels {
-			name := "f32/" + k.name
+		for _, k := range kernel.All {
+			name := "f32/" + k.Name
 			if half {
-				name = "f16/" + k.name
+				name = "f16/" + k.Name
 			}
 			b.Run(name, func(b *testing.B) {
 				p := m.NewPredictor()

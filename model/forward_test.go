@@ -15,6 +15,9 @@ import (
 
 	"gonum.org/v1/gonum/blas"
 	"gonum.org/v1/gonum/blas/blas32"
+
+	"convtag/model/internal/kernel"
+	"convtag/model/token"
 )
 
 // fwConfigs are the shapes the forward tests run on: filter counts below,
@@ -38,7 +41,7 @@ func fwModel(t testing.TB, cfg Config, nw int, seed uint64) *Model {
 	for i := range words {
 		words[i] = fmt.Sprintf("w%d", i)
 	}
-	m, err := New(cfg, TokenizerSettings{}, []string{"harbour", "timetable", "luggage"}, words, seed)
+	m, err := New(cfg, token.Settings{}, []string{"harbour", "timetable", "luggage"}, words, seed)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -98,10 +101,10 @@ func TestFoldedMatchesDirect(t *testing.T) {
 		m := fwModel(t, tc.cfg, 150, 7)
 		fm := fwFolded(m, false)
 		inputs := append(fwInputs(m, 300, 11), nil)
-		for _, k := range allKernels {
-			t.Run(tc.name+"/"+k.name, func(t *testing.T) {
+		for _, k := range kernel.All {
+			t.Run(tc.name+"/"+k.Name, func(t *testing.T) {
 				inputs := inputs
-				if k == &genericKernels && tc.cfg.Dim*tc.cfg.Filters > 2000 {
+				if k == kernel.Generic && tc.cfg.Dim*tc.cfg.Filters > 2000 {
 					inputs = inputs[:60] // the plain-Go direct path is slow
 				}
 				pd, pf := m.NewPredictor(), fm.NewPredictor()
@@ -159,16 +162,16 @@ func TestFoldedHalf(t *testing.T) {
 		for i, ft := range hm.Fold {
 			w := make([]float32, len(ft.F16))
 			for j, h := range ft.F16 {
-				w[j] = F16ToF32(h)
+				w[j] = kernel.F16ToF32(h)
 			}
 			wm.Fold[i] = FoldTable{Width: ft.Width, F32: w}
 		}
 		exact := fwFolded(m, false)
 		inputs := fwInputs(m, 300, 12)
-		for _, k := range allKernels {
-			t.Run(tc.name+"/"+k.name, func(t *testing.T) {
+		for _, k := range kernel.All {
+			t.Run(tc.name+"/"+k.Name, func(t *testing.T) {
 				inputs := inputs
-				if k == &genericKernels && tc.cfg.Dim*tc.cfg.Filters > 2000 {
+				if k == kernel.Generic && tc.cfg.Dim*tc.cfg.Filters > 2000 {
 					inputs = inputs[:60] // the plain-Go direct path is slow
 				}
 				ph, pw, pd := hm.NewPredictor(), wm.NewPredictor(), m.NewPredictor()
@@ -247,8 +250,8 @@ func fwHalfLogitBound(m *Model, rows []int32) float64 {
 func TestDirectMatchesGonum(t *testing.T) {
 	for _, tc := range fwConfigs {
 		m := fwModel(t, tc.cfg, 150, 9)
-		for _, k := range allKernels {
-			t.Run(tc.name+"/"+k.name, func(t *testing.T) {
+		for _, k := range kernel.All {
+			t.Run(tc.name+"/"+k.Name, func(t *testing.T) {
 				p := m.NewPredictor()
 				p.k = k
 				for _, rows := range fwInputs(m, 120, 13) {
@@ -415,8 +418,8 @@ func TestPredictTokenizes(t *testing.T) {
 	m := fwModel(t, fwConfigs[0].cfg, 50, 4)
 	p := m.NewPredictor()
 	for _, s := range []string{"w1 w2 w3", "w7 unknownword w49, w0!", "ferry to Kelloway at 9"} {
-		var ts Tokens
-		m.TokenizerFor().Tokenize(&ts, []byte(s))
+		var ts token.Tokens
+		m.Tokenizer().Tokenize(&ts, []byte(s))
 		rows := make([]int32, ts.Len())
 		for i := range rows {
 			rows[i] = m.Vocab.Row(ts.At(i))
@@ -475,7 +478,7 @@ func TestZeroAllocs(t *testing.T) {
 		models := map[string]*Model{"direct": m, "f32": fwFolded(m, false), "f16": fwFolded(m, true)}
 		rows := fwInputs(m, 60, 15)
 		for name, mm := range models {
-			for _, k := range allKernels {
+			for _, k := range kernel.All {
 				p := mm.NewPredictor()
 				p.k = k
 				for _, r := range rows {
@@ -483,10 +486,10 @@ func TestZeroAllocs(t *testing.T) {
 				}
 				i := 0
 				if a := testing.AllocsPerRun(100, func() { p.PredictRows(rows[i%len(rows)]); i++ }); a != 0 {
-					t.Errorf("%s/%s/%s: PredictRows allocates %v times", fwConfigs[ci].name, name, k.name, a)
+					t.Errorf("%s/%s/%s: PredictRows allocates %v times", fwConfigs[ci].name, name, k.Name, a)
 				}
 				if a := testing.AllocsPerRun(100, func() { p.Predict(text) }); a != 0 {
-					t.Errorf("%s/%s/%s: Predict allocates %v times", fwConfigs[ci].name, name, k.name, a)
+					t.Errorf("%s/%s/%s: Predict allocates %v times", fwConfigs[ci].name, name, k.Name, a)
 				}
 			}
 		}
@@ -558,7 +561,7 @@ func TestAgainstTorch(t *testing.T) {
 	for i, tc := range cases {
 		m := fwFolded(fwModel(t, tc.cfg, 300, 21), false)
 		path := filepath.Join(dir, fmt.Sprintf("model%d.safetensors", i))
-		if err := m.Save(path); err != nil {
+		if err := m.Save(path, SaveOptions{}); err != nil {
 			t.Fatal(err)
 		}
 		models = append(models, m)

@@ -6,6 +6,8 @@ import (
 	"fmt"
 	"strings"
 	"testing"
+
+	"convtag/model/token"
 )
 
 // stEntries is a header of n entries: zero-byte U8 tensors, or metadata
@@ -125,7 +127,7 @@ func TestErrorsCapQuotedValues(t *testing.T) {
 			}
 		})
 	}
-	if _, err := New(Config{Dim: 4, Widths: []int{3}, Filters: 2, Buckets: 4}, TokenizerSettings{}, []string{long, long}, nil, 1); err == nil || len(err.Error()) >= 1000 {
+	if _, err := New(Config{Dim: 4, Widths: []int{3}, Filters: 2, Buckets: 4}, token.Settings{}, []string{long, long}, nil, 1); err == nil || len(err.Error()) >= 1000 {
 		t.Errorf("New with a duplicate long label: %.300v", err)
 	}
 }

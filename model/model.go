@@ -1,5 +1,7 @@
 package model
 
+import "convtag/model/token"
+
 // Conv is one convolution of a given width.
 type Conv struct {
 	Width int
@@ -31,9 +33,9 @@ type FoldTable struct {
 // for concurrent use; every slice may alias a memory-mapped file and must not
 // be written. Close releases the mapping; no Predictor may be used after it.
 type Model struct {
-	Config    Config
-	Tokenizer TokenizerSettings
-	Labels    []string
+	Config        Config
+	TokenSettings token.Settings
+	Labels        []string
 
 	// Emb is the embedding matrix [Rows()][Dim]: row 0 is padding (all
 	// zero), rows 1..V the vocabulary words in order, rows V+1..V+B the
@@ -59,8 +61,8 @@ type Model struct {
 	Meta map[string]string
 
 	closer func() error
-	tok    *Tokenizer
-	src    *source // the file's bytes when opened or loaded (open.go); nil when built
+	tok    *token.Tokenizer // built from TokenSettings by New, Open and Load
+	src    *source          // the file's bytes when opened or loaded (open.go); nil when built
 }
 
 // Rows is the number of embedding rows: padding, vocabulary and buckets.

@@ -5,6 +5,8 @@ import (
 	"math"
 	"math/rand/v2"
 	"slices"
+
+	"convtag/model/token"
 )
 
 // New returns a randomly initialised model with its own (not mapped)
@@ -13,7 +15,7 @@ import (
 // dense layer uniform in [-1/sqrt(fan_in), 1/sqrt(fan_in)] for weights and
 // biases, which is the bound of PyTorch's default initialisation for Conv1d
 // and Linear. The same arguments and seed give the same model.
-func New(cfg Config, tok TokenizerSettings, labels []string, words []string, seed uint64) (*Model, error) {
+func New(cfg Config, tok token.Settings, labels []string, words []string, seed uint64) (*Model, error) {
 	if err := cfg.Validate(); err != nil {
 		return nil, err
 	}
@@ -33,11 +35,11 @@ func New(cfg Config, tok TokenizerSettings, labels []string, words []string, see
 		}
 	}
 	m := &Model{
-		Config:    cfg,
-		Tokenizer: tok,
-		Labels:    slices.Clone(labels),
-		Vocab:     NewVocab(words, cfg.Buckets),
-		Meta:      map[string]string{},
+		Config:        cfg,
+		TokenSettings: tok,
+		Labels:        slices.Clone(labels),
+		Vocab:         NewVocab(words, cfg.Buckets),
+		Meta:          map[string]string{},
 	}
 	m.Config.Widths = slices.Clone(cfg.Widths)
 	d, f := cfg.Dim, cfg.Filters
@@ -56,7 +58,7 @@ func New(cfg Config, tok TokenizerSettings, labels []string, words []string, see
 		in = cfg.Hidden
 	}
 	m.Out = *newDense(in, len(labels), uniform)
-	m.tok = NewTokenizer(tok)
+	m.tok = token.New(tok)
 	return m, nil
 }
 
@@ -79,10 +81,12 @@ func firstDuplicate(s []string) int {
 	return -1
 }
 
-// TokenizerFor returns the model's tokenizer.
-func (m *Model) TokenizerFor() *Tokenizer {
+// Tokenizer returns the model's tokenizer, built from TokenSettings when
+// the model was made (New) or opened (Open, Load); for a Model put together
+// by hand, a new one each call, so the shared Model is never written.
+func (m *Model) Tokenizer() *token.Tokenizer {
 	if m.tok == nil {
-		m.tok = NewTokenizer(m.Tokenizer)
+		return token.New(m.TokenSettings)
 	}
 	return m.tok
 }

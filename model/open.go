@@ -13,6 +13,8 @@ import (
 	"strconv"
 	"strings"
 	"unsafe"
+
+	"convtag/model/token"
 )
 
 // Tensor names of a model file (see the contract in Encode's doc).
@@ -45,10 +47,10 @@ const (
 	MetaFormatVersion = "format_version" // decimal FormatVersion
 	MetaLabels        = "labels"         // JSON array of strings
 	MetaConfig        = "config"         // JSON of Config
-	MetaTokenizer     = "tokenizer"      // JSON of TokenizerSettings
+	MetaTokenizer     = "tokenizer"      // JSON of token.Settings
 	MetaTraining      = "training"       // JSON training summary, optional, written by training
 	MetaChecksum      = "checksum"       // "sha256:" + hex of the whole data buffer
-	MetaCreatedBy     = "created_by"     // "convtag " + Version
+	MetaCreatedBy     = "created_by"     // "convtag " + SaveOptions.Version
 )
 
 // FormatName is the value of the "format" metadata key.
@@ -216,10 +218,10 @@ func assemble(meta map[string]string, tensors []Tensor) (*Model, error) {
 	if err := m.Config.Validate(); err != nil {
 		return nil, fmt.Errorf("%w: config: %v", ErrMetadata, err)
 	}
-	if err := decodeMeta(meta, MetaTokenizer, &m.Tokenizer); err != nil {
+	if err := decodeMeta(meta, MetaTokenizer, &m.TokenSettings); err != nil {
 		return nil, err
 	}
-	if err := m.Tokenizer.Validate(); err != nil {
+	if err := m.TokenSettings.Validate(); err != nil {
 		return nil, fmt.Errorf("%w: tokenizer: %v", ErrMetadata, err)
 	}
 	if err := decodeMeta(meta, MetaLabels, &m.Labels); err != nil {
@@ -260,7 +262,7 @@ func assemble(meta map[string]string, tensors []Tensor) (*Model, error) {
 		}
 		return nil, formatErr(extra[0], ErrUnexpectedTensor, "not part of this model's config%s", more)
 	}
-	m.tok = NewTokenizer(m.Tokenizer)
+	m.tok = token.New(m.TokenSettings)
 	return m, nil
 }
 

@@ -19,7 +19,7 @@ func TestOpenReadLimit(t *testing.T) {
 		t.Skip("no /dev/fd or /dev/zero")
 	}
 	var file bytes.Buffer
-	if err := stModel(t, 20, 0, "F32").Encode(&file); err != nil {
+	if err := stModel(t, 20, 0, "F32").Encode(&file, SaveOptions{}); err != nil {
 		t.Fatal(err)
 	}
 	size := int64(file.Len())

@@ -2,6 +2,7 @@ package model
 
 import (
 	"bufio"
+	"cmp"
 	"crypto/rand"
 	"crypto/sha256"
 	"encoding/binary"
@@ -20,9 +21,13 @@ import (
 	"unsafe"
 )
 
-// Version is the program version written to the created_by metadata key.
-// The command sets it at start-up; it has no other effect.
-var Version = "dev"
+// SaveOptions say what Encode and Save record besides the model. The zero
+// value is usable.
+type SaveOptions struct {
+	// Version is the writing program's version, recorded in the created_by
+	// metadata key as "convtag " + Version; "" records "dev".
+	Version string
+}
 
 // Encode writes the model as a safetensors file. Tensors are packed so that
 // every one starts aligned for its element type: vocab.offsets (I64)
@@ -34,8 +39,8 @@ var Version = "dev"
 // The same model always gives the same bytes. Encode checks the model as
 // Load would, including that every weight is finite, and writes nothing
 // when it fails.
-func (m *Model) Encode(w io.Writer) error {
-	meta, tensors, err := m.container()
+func (m *Model) Encode(w io.Writer, o SaveOptions) error {
+	meta, tensors, err := m.container(o)
 	if err != nil {
 		return err
 	}
@@ -44,7 +49,7 @@ func (m *Model) Encode(w io.Writer) error {
 
 // container returns the model's metadata and tensors, ready to encode and
 // checked against the schema.
-func (m *Model) container() (map[string]string, []Tensor, error) {
+func (m *Model) container(o SaveOptions) (map[string]string, []Tensor, error) {
 	if m.Vocab == nil {
 		return nil, nil, fmt.Errorf("model: encode: no vocabulary")
 	}
@@ -62,8 +67,8 @@ func (m *Model) container() (map[string]string, []Tensor, error) {
 	meta[MetaFormatVersion] = strconv.Itoa(FormatVersion)
 	meta[MetaLabels] = mustJSON(m.Labels)
 	meta[MetaConfig] = mustJSON(m.Config)
-	meta[MetaTokenizer] = mustJSON(m.Tokenizer)
-	meta[MetaCreatedBy] = "convtag " + Version
+	meta[MetaTokenizer] = mustJSON(m.TokenSettings)
+	meta[MetaCreatedBy] = "convtag " + cmp.Or(o.Version, "dev")
 	h := sha256.New()
 	for _, t := range tensors {
 		h.Write(t.Data)
@@ -138,7 +143,7 @@ func mustJSON(v any) string {
 // mapped keeps its (unchanged) pages. The file is created with mode 0666
 // less the umask, like any other output. On every failure, a panic
 // included, the temporary file is removed and path is left as it was.
-func (m *Model) Save(path string) (err error) {
+func (m *Model) Save(path string, o SaveOptions) (err error) {
 	dir, base := filepath.Split(path)
 	if dir == "" {
 		dir = "."
@@ -159,7 +164,7 @@ func (m *Model) Save(path string) (err error) {
 		}
 	}()
 	bw := bufio.NewWriterSize(saveWriter(f), 1<<20)
-	if err = m.Encode(bw); err != nil {
+	if err = m.Encode(bw, o); err != nil {
 		return err
 	}
 	if err = bw.Flush(); err != nil {

@@ -48,7 +48,7 @@ func TestSaveFailedWriteLeavesNoTemp(t *testing.T) {
 			dir := t.TempDir()
 			path := filepath.Join(dir, "m.safetensors")
 			old := stModel(t, 10, 0, "")
-			if err := old.Save(path); err != nil {
+			if err := old.Save(path, SaveOptions{}); err != nil {
 				t.Fatal(err)
 			}
 			before, _ := os.ReadFile(path)
@@ -60,7 +60,7 @@ func TestSaveFailedWriteLeavesNoTemp(t *testing.T) {
 						err = r.(error)
 					}
 				}()
-				return stModel(t, 400, 2, "F32").Save(path)
+				return stModel(t, 400, 2, "F32").Save(path, SaveOptions{})
 			}()
 			if !errors.Is(err, errDiskFull) {
 				t.Fatalf("save: %v, want the write's error", err)

@@ -24,7 +24,7 @@ func TestSaveModeFollowsUmask(t *testing.T) {
 		dir := t.TempDir()
 		path := filepath.Join(dir, "m.safetensors")
 		old := syscall.Umask(tt.umask)
-		err := stModel(t, 5, 0, "").Save(path)
+		err := stModel(t, 5, 0, "").Save(path, SaveOptions{})
 		syscall.Umask(old)
 		if err != nil {
 			t.Fatal(err)

@@ -9,6 +9,9 @@ import (
 
 	"sync"
 	"time"
+
+	"convtag/model/internal/kernel"
+	"convtag/model/metrics"
 )
 
 // Training defaults. Batch size 50, dropout 0.5 on the pooled features,
@@ -80,6 +83,10 @@ type TrainOptions struct {
 	// closed (for example a context's Done channel): Train then returns
 	// ErrStopped and leaves m's weights unspecified.
 	Stop <-chan struct{}
+
+	// kernels, if not nil, are the training kernels instead of
+	// kernel.Active (tests compare the sets).
+	kernels *kernel.Set
 }
 
 // EpochStats are one epoch's figures.
@@ -272,6 +279,9 @@ func newTrainer(m *Model, opt TrainOptions) *trainer {
 			t.cw[c] = float32(opt.ClassWeights[c])
 		}
 	}
+	if opt.kernels != nil {
+		t.p.kern = opt.kernels
+	}
 	t.st = newOptState(t.p, opt.Opt)
 	for range opt.Jobs {
 		t.ws = append(t.ws, newTrainWorker(t.p))
@@ -378,7 +388,7 @@ func (t *trainer) reduce(n int) {
 			lo, hi := k*len(dst)/parts, (k+1)*len(dst)/parts
 			copy(dst[lo:hi], t.ws[0].g.trDense()[ti][lo:hi])
 			for _, w := range t.ws[1:n] {
-				trAdd(dst[lo:hi], w.g.trDense()[ti][lo:hi])
+				trAdd(t.p.kern, dst[lo:hi], w.g.trDense()[ti][lo:hi])
 			}
 		}
 	})
@@ -386,7 +396,7 @@ func (t *trainer) reduce(n int) {
 	for _, w := range t.ws[:n] {
 		for si, r := range w.g.rows {
 			src := w.g.embRow(si, d)
-			trAdd(g.touch(r, d), src)
+			trAdd(t.p.kern, g.touch(r, d), src)
 		}
 	}
 }
@@ -407,48 +417,7 @@ func (t *trainer) evaluate(ex []Example) (acc, macroF1 float64) {
 	for i, e := range ex {
 		gold[i] = e.Label
 	}
-	return Accuracy(gold, pred), MacroF1(gold, pred, len(t.m.Labels))
-}
-
-// Accuracy is the fraction of pred equal to gold.
-func Accuracy(gold, pred []int) float64 {
-	if len(gold) == 0 {
-		return 0
-	}
-	n := 0
-	for i := range gold {
-		if gold[i] == pred[i] {
-			n++
-		}
-	}
-	return float64(n) / float64(len(gold))
-}
-
-// MacroF1 is the unweighted mean over the labels that occur in gold or pred
-// of each label's F1 = 2 TP / (2 TP + FP + FN).
-func MacroF1(gold, pred []int, labels int) float64 {
-	tp, fp, fn := make([]int, labels), make([]int, labels), make([]int, labels)
-	for i := range gold {
-		if gold[i] == pred[i] {
-			tp[gold[i]]++
-		} else {
-			fn[gold[i]]++
-			fp[pred[i]]++
-		}
-	}
-	var sum float64
-	n := 0
-	for c := range labels {
-		if tp[c]+fp[c]+fn[c] == 0 {
-			continue
-		}
-		sum += 2 * float64(tp[c]) / float64(2*tp[c]+fp[c]+fn[c])
-		n++
-	}
-	if n == 0 {
-		return 0
-	}
-	return sum / float64(n)
+	return metrics.Accuracy(gold, pred), metrics.MacroF1(metrics.PerLabel(metrics.Confusion(gold, pred, len(t.m.Labels)), nil))
 }
 
 func trArgmax(x []float32) int {
@@ -504,6 +473,6 @@ func trMaxNorm(w []float32, in int, s float32) {
 	}
 }
 
-func trAdd(dst, src []float32) {
-	trAxpy(1, src, dst)
+func trAdd(k *kernel.Set, dst, src []float32) {
+	k.Axpy(1, src, dst)
 }

@@ -7,11 +7,11 @@ import (
 	"fmt"
 	"math"
 	"os"
-	"slices"
 	"testing"
 	"time"
 
 	"convtag/model/internal/uci"
+	"convtag/model/token"
 )
 
 // benchData returns the UCI sentences as examples for a model of dimension
@@ -26,8 +26,8 @@ func benchData(b *testing.B, d int) (*Model, []Example, []Example) {
 	if err != nil {
 		b.Skip(err)
 	}
-	tok := NewTokenizer(TokenizerSettings{})
-	var ts Tokens
+	tok := token.New(token.Settings{})
+	var ts token.Tokens
 	counts := map[string]int{}
 	labels := make([]int, len(s))
 	for i, x := range s {
@@ -37,7 +37,7 @@ func benchData(b *testing.B, d int) (*Model, []Example, []Example) {
 		}
 	}
 	cfg := Config{Dim: d, Widths: []int{3, 4, 5}, Filters: 100, Buckets: 1000}
-	m, err := New(cfg, TokenizerSettings{}, []string{"negative", "positive"}, BuildWords(counts, 2, 0), 1)
+	m, err := New(cfg, token.Settings{}, []string{"negative", "positive"}, BuildWords(counts, 2, 0), 1)
 	if err != nil {
 		b.Fatal(err)
 	}
@@ -167,44 +167,5 @@ func setTensorBits(m *Model, bits []byte) {
 func logLoad(b *testing.B, when string) {
 	if l, err := os.ReadFile("/proc/loadavg"); err == nil {
 		b.Logf("load average %s: %s", when, bytes.TrimSpace(l))
-	}
-}
-
-// BenchmarkConvKernel is the training convolution kernel, two panels in
-// AVX-512, one in AVX2, and plain Go, at d = 128, width 5 (k = 640).
-func BenchmarkConvKernel(b *testing.B) {
-	const d, w = 128, 5
-	k := d * w
-	a := make([]float32, (trRows-1)*d+k)
-	bb := make([]float32, k*trPanel)
-	c := make([]float32, trRows*trPanel)
-	for i := range a {
-		a[i] = float32(i%7) * 0.1
-	}
-	for i := range bb {
-		bb[i] = float32(i%5) * 0.1
-	}
-	bb2 := append(slices.Clone(bb), bb...)
-	c2 := make([]float32, trRows*2*trPanel)
-	for _, tc := range []struct {
-		name   string
-		panels int
-		f      func([]float32, int, []float32, int, []float32, int)
-	}{{"asm512x2", 2, trConv2}, {"asm", 1, trConv}, {"go", 1, trConvGo}} {
-		b.Run(tc.name, func(b *testing.B) {
-			if tc.name == "asm" && !trainAVX2 || tc.panels == 2 && !trainAVX512 {
-				b.Skip("no AVX2 or AVX-512")
-			}
-			bp, cp := bb, c
-			if tc.panels == 2 {
-				bp, cp = bb2, c2
-			}
-			b.SetBytes(int64(4 * len(bp)))
-			b.ReportAllocs()
-			for b.Loop() {
-				tc.f(a, d, bp, k, cp, tc.panels*trPanel)
-			}
-			b.ReportMetric(float64(2*trRows*tc.panels*trPanel*k)*float64(b.N)/b.Elapsed().Seconds()/1e9, "GFLOP/s")
-		})
 	}
 }

@@ -5,11 +5,13 @@ import (
 	"math/rand/v2"
 	"slices"
 	"strings"
+
+	"convtag/model/token"
 )
 
 // CountTokens adds one to counts for every token of text, as tok cuts it.
 // ts is scratch.
-func CountTokens(counts map[string]int, tok *Tokenizer, ts *Tokens, text []byte) {
+func CountTokens(counts map[string]int, tok *token.Tokenizer, ts *token.Tokens, text []byte) {
 	tok.Tokenize(ts, text)
 	for i := range ts.Len() {
 		counts[string(ts.At(i))]++
@@ -41,8 +43,8 @@ func BuildWords(counts map[string]int, minCount, maxWords int) []string {
 
 // AppendRows appends the embedding rows of text's tokens to dst, cutting
 // the text with m's tokenizer into the scratch ts.
-func (m *Model) AppendRows(dst []int32, ts *Tokens, text []byte) []int32 {
-	m.TokenizerFor().Tokenize(ts, text)
+func (m *Model) AppendRows(dst []int32, ts *token.Tokens, text []byte) []int32 {
+	m.Tokenizer().Tokenize(ts, text)
 	for i := range ts.Len() {
 		dst = append(dst, m.Vocab.Row(ts.At(i)))
 	}

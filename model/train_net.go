@@ -4,14 +4,17 @@ import (
 	"math"
 	"math/rand/v2"
 	"slices"
+
+	"convtag/model/internal/kernel"
 )
 
 // trPanel is the number of filters the convolution kernel computes at once;
-// the packed weights are padded to a multiple of it.
-const trPanel = 16
-
-// trRows is the number of windows the convolution kernel computes at once.
-const trRows = 4
+// the packed weights are padded to a multiple of it. trRows is the number
+// of windows it computes at once.
+const (
+	trPanel = kernel.ConvPanel
+	trRows  = kernel.ConvRows
+)
 
 // netParams are the weights during training, with the convolutions in a
 // working layout: conv[i][f*K + k*d + j] (K = w*d) is filter f's weight for
@@ -31,13 +34,14 @@ type netParams struct {
 	outW, outB       []float32
 	outIn, C         int
 	list             [][]float32 // every dense tensor, in a fixed order
+	kern             *kernel.Set // the training kernels
 }
 
 func paramsFrom(m *Model) *netParams {
 	cfg := m.Config
 	d, f := cfg.Dim, cfg.Filters
 	p := &netParams{
-		d: d, rows: m.Rows(), F: f, Fpad: (f + trPanel - 1) / trPanel * trPanel,
+		kern: kernel.Active, d: d, rows: m.Rows(), F: f, Fpad: (f + trPanel - 1) / trPanel * trPanel,
 		widths: slices.Clone(cfg.Widths), maxW: cfg.MaxWidth(),
 		emb:  slices.Clone(m.Emb),
 		outW: slices.Clone(m.Out.W), outB: slices.Clone(m.Out.B), outIn: m.Out.In, C: m.Out.Out,
@@ -245,13 +249,13 @@ func (w *trainWorker) forward(p *netParams, rows []int32, dropout float64, seed,
 		for ; q+1 < np; q += 2 {
 			b := p.packed[i][q*k*trPanel : (q+2)*k*trPanel]
 			for rb := range nb {
-				trConv2(w.x[rb*trRows*d:], d, b, k, w.pre[rb*trRows*p.Fpad+q*trPanel:], p.Fpad)
+				p.kern.Conv2(w.x[rb*trRows*d:], d, b, k, w.pre[rb*trRows*p.Fpad+q*trPanel:], p.Fpad)
 			}
 		}
 		if q < np {
 			b := p.packed[i][q*k*trPanel : (q+1)*k*trPanel]
 			for rb := range nb {
-				trConv(w.x[rb*trRows*d:], d, b, k, w.pre[rb*trRows*p.Fpad+q*trPanel:], p.Fpad)
+				p.kern.Conv(w.x[rb*trRows*d:], d, b, k, w.pre[rb*trRows*p.Fpad+q*trPanel:], p.Fpad)
 			}
 		}
 		off := i * p.F
@@ -325,21 +329,21 @@ func (w *trainWorker) backward(p *netParams) {
 	if p.hidW != nil {
 		x = w.hid
 	}
-	trDenseBack(goutW, goutB, w.dlog, x)
+	trDenseBack(p.kern, goutW, goutB, w.dlog, x)
 	if p.hidW != nil {
 		clear(w.dhid)
-		trDenseInput(w.dhid, p.outW, w.dlog)
+		trDenseInput(p.kern, w.dhid, p.outW, w.dlog)
 		for i, v := range w.hid {
 			if v <= 0 {
 				w.dhid[i] = 0
 			}
 		}
-		trDenseBack(gl[2*nc], gl[2*nc+1], w.dhid, w.in)
+		trDenseBack(p.kern, gl[2*nc], gl[2*nc+1], w.dhid, w.in)
 		clear(w.dfeat)
-		trDenseInput(w.dfeat, p.hidW, w.dhid)
+		trDenseInput(p.kern, w.dfeat, p.hidW, w.dhid)
 	} else {
 		clear(w.dfeat)
-		trDenseInput(w.dfeat, p.outW, w.dlog)
+		trDenseInput(p.kern, w.dfeat, p.outW, w.dlog)
 	}
 	n, d := len(w.rows), p.d
 	w.dx = trGrow(w.dx, (n+p.maxW-1)*d)
@@ -356,13 +360,13 @@ func (w *trainWorker) backward(p *netParams) {
 			}
 			gb[f] += g
 			o := int(t) * d
-			trAxpy(g, w.x[o:o+k], gw[f*k:(f+1)*k])
-			trAxpy(g, p.conv[i][f*k:(f+1)*k], w.dx[o:o+k])
+			p.kern.Axpy(g, w.x[o:o+k], gw[f*k:(f+1)*k])
+			p.kern.Axpy(g, p.conv[i][f*k:(f+1)*k], w.dx[o:o+k])
 		}
 	}
 	for q, r := range w.rows {
 		if r != 0 {
-			trAdd(w.g.touch(r, d), w.dx[q*d:(q+1)*d])
+			trAdd(p.kern, w.g.touch(r, d), w.dx[q*d:(q+1)*d])
 		}
 	}
 }
@@ -376,22 +380,22 @@ func trDense(y, wt, b, x []float32) {
 }
 
 // trDenseBack adds the weight and bias gradients of y = W x + b given dy.
-func trDenseBack(gw, gb, dy, x []float32) {
+func trDenseBack(k *kernel.Set, gw, gb, dy, x []float32) {
 	in := len(x)
 	for o, g := range dy {
 		gb[o] += g
 		if g != 0 {
-			trAxpy(g, x, gw[o*in:(o+1)*in])
+			k.Axpy(g, x, gw[o*in:(o+1)*in])
 		}
 	}
 }
 
 // trDenseInput adds W^T dy to dx.
-func trDenseInput(dx, wt, dy []float32) {
+func trDenseInput(k *kernel.Set, dx, wt, dy []float32) {
 	in := len(dx)
 	for o, g := range dy {
 		if g != 0 {
-			trAxpy(g, wt[o*in:(o+1)*in], dx)
+			k.Axpy(g, wt[o*in:(o+1)*in], dx)
 		}
 	}
 }

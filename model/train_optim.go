@@ -1,6 +1,10 @@
 package model
 
-import "math"
+import (
+	"math"
+
+	"convtag/model/internal/kernel"
+)
 
 // optState is the optimiser's per-parameter state: for Adadelta the running
 // means of squared gradients (a) and of squared updates (b), for Adam the
@@ -9,10 +13,11 @@ import "math"
 type optState struct {
 	a, b       [][]float32
 	embA, embB []float32
+	k          *kernel.Set
 }
 
 func newOptState(p *netParams, _ string) optState {
-	var s optState
+	s := optState{k: p.kern}
 	for _, t := range p.list {
 		s.a = append(s.a, make([]float32, len(t)))
 		s.b = append(s.b, make([]float32, len(t)))
@@ -32,7 +37,7 @@ func newOptState(p *netParams, _ string) optState {
 func (s *optState) step(opt string, t int, lr float32, w, g, a, b []float32) {
 	switch opt {
 	case OptAdadelta:
-		adadelta(lr, w, g, a, b)
+		s.k.Adadelta(lr, w, g, a, b)
 	case OptAdam:
 		bc1 := float32(1 - math.Pow(AdamBeta1, float64(t)))
 		sq2 := float32(math.Sqrt(1 - math.Pow(AdamBeta2, float64(t))))
@@ -53,7 +58,7 @@ func (s *optState) step(opt string, t int, lr float32, w, g, a, b []float32) {
 func (s *optState) embStep(opt string, t int, lr float32, w, g, a, b []float32) {
 	switch opt {
 	case OptAdadelta:
-		adadelta(lr, w, g, a, b)
+		s.k.Adadelta(lr, w, g, a, b)
 	case OptAdam:
 		bc1 := 1 - math.Pow(AdamBeta1, float64(t))
 		bc2 := 1 - math.Pow(AdamBeta2, float64(t))
@@ -63,22 +68,6 @@ func (s *optState) embStep(opt string, t int, lr float32, w, g, a, b []float32) 
 			b[i] = AdamBeta2*b[i] + (1-AdamBeta2)*gi*gi
 			w[i] -= stepSize * a[i] / (trSqrt(b[i]) + AdamEps)
 		}
-	}
-}
-
-// adadeltaGo is the portable twin of adadelta: one Adadelta step for the
-// len(g) elements of w, with the running means sq and acc. Every product is
-// rounded to float32 by an explicit conversion, so the compiler cannot fuse
-// it into a multiply-add and the assembly twin matches bit for bit on every
-// GOAMD64 level.
-func adadeltaGo(lr float32, w, g, sq, acc []float32) {
-	const rho, eps = AdadeltaRho, AdadeltaEps
-	w, sq, acc = w[:len(g)], sq[:len(g)], acc[:len(g)]
-	for i, gi := range g {
-		sq[i] = float32(rho*sq[i]) + float32(float32((1-rho)*gi)*gi)
-		delta := float32(trSqrt(acc[i]+eps)/trSqrt(sq[i]+eps)) * gi
-		acc[i] = float32(rho*acc[i]) + float32(float32((1-rho)*delta)*delta)
-		w[i] -= float32(lr * delta)
 	}
 }
 

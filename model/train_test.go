@@ -12,6 +12,9 @@ import (
 	"path/filepath"
 	"slices"
 	"testing"
+
+	"convtag/model/internal/kernel"
+	"convtag/model/token"
 )
 
 // tinyNet returns a small random network and a batch over its rows.
@@ -19,7 +22,7 @@ func tinyNet(t *testing.T, hidden int, seed uint64) (*Model, []Example) {
 	t.Helper()
 	cfg := Config{Dim: 5, Widths: []int{1, 2, 3}, Filters: 4, Hidden: hidden, Buckets: 3}
 	words := []string{"a", "b", "c", "d", "e", "f"}
-	m, err := New(cfg, TokenizerSettings{}, []string{"x", "y", "z"}, words, seed)
+	m, err := New(cfg, token.Settings{}, []string{"x", "y", "z"}, words, seed)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -172,7 +175,7 @@ func TestGradientTorch(t *testing.T) {
 			for i := range 30 {
 				words = append(words, fmt.Sprintf("w%d", i))
 			}
-			m, err := New(cfg, TokenizerSettings{}, []string{"a", "b", "c"}, words, 5)
+			m, err := New(cfg, token.Settings{}, []string{"a", "b", "c"}, words, 5)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -271,99 +274,6 @@ func runTorch(t testing.TB, script string, in any) []byte {
 	return out
 }
 
-// TestTrainKernelsMatchGo compares the assembly kernels with their
-// plain-Go twins on overlapping window rows, as training uses them.
-func TestTrainKernelsMatchGo(t *testing.T) {
-	if !trainAVX2 {
-		t.Skip("no AVX2/FMA: only the plain-Go kernels run")
-	}
-	rng := rand.New(rand.NewPCG(1, 2))
-	fill := func(n int) []float32 {
-		s := make([]float32, n)
-		for i := range s {
-			s[i] = float32(rng.NormFloat64())
-		}
-		return s
-	}
-	for _, tc := range []struct{ d, w int }{{1, 1}, {3, 2}, {8, 3}, {128, 5}, {300, 4}} {
-		k := tc.d * tc.w
-		a := fill((trRows-1)*tc.d + k)
-		b := fill(k * trPanel)
-		ldc := 3 * trPanel
-		c1, c2 := make([]float32, trRows*ldc), make([]float32, trRows*ldc)
-		trConv(a, tc.d, b, k, c1, ldc)
-		trConvGo(a, tc.d, b, k, c2, ldc)
-		for i := range c1 {
-			if d := math.Abs(float64(c1[i] - c2[i])); d > 1e-5*math.Sqrt(float64(k)) {
-				t.Fatalf("d=%d w=%d: kernel[%d] = %g, Go %g", tc.d, tc.w, i, c1[i], c2[i])
-			}
-		}
-	}
-	// The two-panel kernel must equal two one-panel calls bit for bit, so
-	// that training gives the same weights with and without AVX-512.
-	for _, tc := range []struct{ d, w int }{{1, 1}, {3, 2}, {8, 3}, {128, 5}, {300, 4}} {
-		k := tc.d * tc.w
-		a := fill((trRows-1)*tc.d + k)
-		b := fill(2 * k * trPanel)
-		ldc := 3 * trPanel
-		c1, c2 := make([]float32, trRows*ldc), make([]float32, trRows*ldc)
-		trConv2(a, tc.d, b, k, c1, ldc)
-		trConv(a, tc.d, b[:k*trPanel], k, c2, ldc)
-		trConv(a, tc.d, b[k*trPanel:], k, c2[trPanel:], ldc)
-		for i := range c1 {
-			if math.Float32bits(c1[i]) != math.Float32bits(c2[i]) {
-				t.Fatalf("d=%d w=%d: two-panel kernel[%d] = %g, one-panel %g (avx512 %v)", tc.d, tc.w, i, c1[i], c2[i], trainAVX512)
-			}
-		}
-	}
-	// Adadelta: the same bits as the Go twin, over several steps so the
-	// running means are not zero.
-	for _, n := range []int{1, 7, 8, 9, 33, 640} {
-		g := fill(n)
-		var st [2][3][]float32 // weights, squared gradients, squared updates
-		for v := range st {
-			st[v] = [3][]float32{fill(n), make([]float32, n), make([]float32, n)}
-			copy(st[v][0], st[0][0])
-		}
-		for range 3 {
-			adadelta(0.9, st[0][0], g, st[0][1], st[0][2])
-			adadeltaGo(0.9, st[1][0], g, st[1][1], st[1][2])
-			for i := range g {
-				g[i] = -0.5 * g[i]
-			}
-		}
-		for j := range 3 {
-			for i := range n {
-				if math.Float32bits(st[0][j][i]) != math.Float32bits(st[1][j][i]) {
-					t.Fatalf("n=%d: adadelta tensor %d [%d] = %g, Go %g", n, j, i, st[0][j][i], st[1][j][i])
-				}
-			}
-		}
-	}
-	for _, n := range []int{1, 7, 8, 9, 15, 16, 17, 24, 31, 32, 33, 63, 64, 65, 100, 127, 640} {
-		x, y := fill(n), fill(n+3)
-		y2 := slices.Clone(y)
-		y3 := slices.Clone(y)
-		trAxpy(0.7, x, y)
-		trAxpyGo(0.7, x, y2)
-		for i := range y {
-			if math.Abs(float64(y[i]-y2[i])) > 1e-6 {
-				t.Fatalf("n=%d: axpy[%d] = %g, Go %g", n, i, y[i], y2[i])
-			}
-		}
-		// With and without the AVX-512 loop: the same bits.
-		on := trainAVX512
-		trainAVX512 = false
-		trAxpy(0.7, x, y3)
-		trainAVX512 = on
-		for i := range y {
-			if math.Float32bits(y[i]) != math.Float32bits(y3[i]) {
-				t.Fatalf("n=%d: axpy[%d] = %g, without AVX-512 %g", n, i, y[i], y3[i])
-			}
-		}
-	}
-}
-
 // toyTask is a learnable property check, not a reference comparison: the
 // label is which of two marker rows the example holds.
 func toyTask(m *Model, n int, seed uint64) []Example {
@@ -407,7 +317,7 @@ func TestTrainDeterministic(t *testing.T) {
 		for _, jobs := range []int{1, 2, 3} {
 			var first []byte
 			for run := range 2 {
-				m, err := New(cfg, TokenizerSettings{}, []string{"no", "yes"}, words, 4)
+				m, err := New(cfg, token.Settings{}, []string{"no", "yes"}, words, 4)
 				if err != nil {
 					t.Fatal(err)
 				}
@@ -425,30 +335,31 @@ func TestTrainDeterministic(t *testing.T) {
 	}
 }
 
-// TestTrainSameWithoutAVX512 trains with and without the two-panel
-// AVX-512 kernel and wants identical weights bit for bit.
-func TestTrainSameWithoutAVX512(t *testing.T) {
-	if !trainAVX512 {
-		t.Skip("no AVX-512: the two-panel kernel does not run")
+// TestTrainSameOnEveryVectorSet trains with each vector kernel set (the
+// AVX-512 one runs the two-panel convolution) and wants identical weights
+// bit for bit.
+func TestTrainSameOnEveryVectorSet(t *testing.T) {
+	sets := kernel.All[1:]
+	if len(sets) < 2 {
+		t.Skip("fewer than two vector kernel sets on this CPU or build")
 	}
-	defer func() { trainAVX512 = true }()
 	// 40 filters: two panel pairs and one single panel per width.
 	cfg := Config{Dim: 24, Widths: []int{2, 3, 5}, Filters: 40, Buckets: 7}
 	words := []string{"p", "q", "r", "s", "t", "u", "v", "w", "x", "y"}
-	var bits [2][]byte
-	for i, on := range []bool{true, false} {
-		trainAVX512 = on
-		m, err := New(cfg, TokenizerSettings{}, []string{"no", "yes"}, words, 4)
+	var first []byte
+	for _, k := range sets {
+		m, err := New(cfg, token.Settings{}, []string{"no", "yes"}, words, 4)
 		if err != nil {
 			t.Fatal(err)
 		}
-		if _, err := Train(m, toyTask(m, 130, 1), toyTask(m, 40, 2), TrainOptions{Epochs: 2, Seed: 8, Jobs: 2, Batch: 7}); err != nil {
+		if _, err := Train(m, toyTask(m, 130, 1), toyTask(m, 40, 2), TrainOptions{Epochs: 2, Seed: 8, Jobs: 2, Batch: 7, kernels: k}); err != nil {
 			t.Fatal(err)
 		}
-		bits[i] = tensorBits(m)
-	}
-	if !bytes.Equal(bits[0], bits[1]) {
-		t.Error("training with the AVX-512 kernel gives other weights than without it")
+		if bits := tensorBits(m); first == nil {
+			first = bits
+		} else if !bytes.Equal(bits, first) {
+			t.Errorf("training with the %s kernels gives other weights than with %s", k.Name, sets[0].Name)
+		}
 	}
 }
 
@@ -459,7 +370,7 @@ func TestTrainLearns(t *testing.T) {
 	words := []string{"p", "q", "r", "s", "t", "u", "v", "w", "x", "y"}
 	for _, opt := range []string{OptAdadelta, OptAdam} {
 		t.Run(opt, func(t *testing.T) {
-			m, err := New(cfg, TokenizerSettings{}, []string{"no", "yes"}, words, 4)
+			m, err := New(cfg, token.Settings{}, []string{"no", "yes"}, words, 4)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -539,7 +450,7 @@ func TestTrainStop(t *testing.T) {
 		{"never", 0, nil},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			m, err := New(cfg, TokenizerSettings{}, []string{"no", "yes"}, words, 4)
+			m, err := New(cfg, token.Settings{}, []string{"no", "yes"}, words, 4)
 			if err != nil {
 				t.Fatal(err)
 			}

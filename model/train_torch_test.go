@@ -6,6 +6,8 @@ import (
 	"math"
 	"math/rand/v2"
 	"testing"
+
+	"convtag/model/token"
 )
 
 // TestTrainMatchesTorch trains the same small network from the same
@@ -28,7 +30,7 @@ func TestTrainMatchesTorch(t *testing.T) {
 			for i := range 30 {
 				words = append(words, fmt.Sprintf("w%d", i))
 			}
-			m, err := New(cfg, TokenizerSettings{}, []string{"a", "b", "c"}, words, 5)
+			m, err := New(cfg, token.Settings{}, []string{"a", "b", "c"}, words, 5)
 			if err != nil {
 				t.Fatal(err)
 			}

@@ -16,7 +16,9 @@ import (
 	"time"
 
 	"convtag/model/internal/uci"
+	"convtag/model/metrics"
 	"convtag/model/nb"
+	"convtag/model/token"
 )
 
 // The UCI cross-validation recipe, shared with testdata/torch_train.py.
@@ -188,8 +190,8 @@ func TestUCICrossValidation(t *testing.T) {
 func uciFolds(t *testing.T, texts []string, labels []int, folds int) []uciFold {
 	r := uciRecipe
 	r.Folds = folds
-	tok := NewTokenizer(TokenizerSettings{})
-	var ts Tokens
+	tok := token.New(token.Settings{})
+	var ts token.Tokens
 	tokens := make([][]string, len(texts))
 	for i, s := range texts {
 		tok.Tokenize(&ts, []byte(s))
@@ -219,7 +221,7 @@ func uciFolds(t *testing.T, texts []string, labels []int, folds int) []uciFold {
 			nbY = append(nbY, labels[i])
 		}
 		cfg := Config{Dim: r.Dim, Widths: r.Widths, Filters: r.Filters, Buckets: r.Buckets}
-		m, err := New(cfg, TokenizerSettings{}, []string{"negative", "positive"}, BuildWords(counts, r.MinCount, 0), 1)
+		m, err := New(cfg, token.Settings{}, []string{"negative", "positive"}, BuildWords(counts, r.MinCount, 0), 1)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -252,7 +254,7 @@ func uciFolds(t *testing.T, texts []string, labels []int, folds int) []uciFold {
 			gold = append(gold, labels[i])
 			pred = append(pred, b.Predict(tokens[i]))
 		}
-		f.nbAcc = Accuracy(gold, pred)
+		f.nbAcc = metrics.Accuracy(gold, pred)
 		out = append(out, f)
 	}
 	return out
@@ -268,7 +270,7 @@ func uciTrainGo(t *testing.T, f uciFold, k, jobs int) (float64, int) {
 	for i := range words {
 		words[i] = strconv.Itoa(i)
 	}
-	m, err := New(cfg, TokenizerSettings{}, []string{"negative", "positive"}, words, r.Seed+uint64(k))
+	m, err := New(cfg, token.Settings{}, []string{"negative", "positive"}, words, r.Seed+uint64(k))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -285,7 +287,7 @@ func uciTrainGo(t *testing.T, f uciFold, k, jobs int) (float64, int) {
 		gold = append(gold, e.Label)
 		pred = append(pred, trArgmax(w.forward(p, e.Rows, 0, 0, 0)))
 	}
-	return Accuracy(gold, pred), res.EpochsRun
+	return metrics.Accuracy(gold, pred), res.EpochsRun
 }
 
 // torchInput is testdata/torch_train.py's input: the recipe and the folds

@@ -14,8 +14,8 @@ import (
 	"github.com/mattn/go-isatty"
 	"github.com/spf13/cobra"
 
-	"convtag/model"
 	"convtag/model/sgns"
+	"convtag/model/token"
 	"convtag/model/vectors"
 	"convtag/stream"
 )
@@ -176,7 +176,7 @@ func runEmbed(a *app, f *embedFlags, args []string) error {
 	if f.sample == 0 {
 		f.o.Sample = -1
 	}
-	f.o.Tokenizer = model.TokenizerSettings{}
+	f.o.Tokenizer = token.Settings{}
 	if !f.quiet {
 		f.o.Progress, f.o.ProgressEvery = embedProgress(a)
 	}
@@ -362,8 +362,8 @@ func runSimilar(a *app, f *embedFlags, args []string) error {
 	if err != nil {
 		return withCode(exitFailure, fmt.Errorf("embed: %s: %w", f.input, err))
 	}
-	tok := model.NewTokenizer(model.TokenizerSettings{})
-	var ts model.Tokens
+	tok := token.New(token.Settings{})
+	var ts token.Tokens
 	idx := s.Index()
 	var out strings.Builder
 	for _, w := range f.similar {

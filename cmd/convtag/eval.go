@@ -21,6 +21,7 @@ import (
 	"convtag/model/metrics"
 	"convtag/model/metrics/plots"
 	"convtag/model/nb"
+	"convtag/model/token"
 	"convtag/stream"
 )
 
@@ -334,7 +335,7 @@ func baselineProbs(b *nb.Model, tokens []string) []float32 {
 
 // tokenStrings cuts text with tok into strings, as train cuts the
 // baseline's input.
-func tokenStrings(tok *model.Tokenizer, ts *model.Tokens, text string) []string {
+func tokenStrings(tok *token.Tokenizer, ts *token.Tokens, text string) []string {
 	tok.Tokenize(ts, []byte(text))
 	out := make([]string, ts.Len())
 	for i := range out {
@@ -409,8 +410,8 @@ func runEval(a *app, f *evalFlags, args []string) error {
 			return err
 		}
 		if base != nil {
-			tok := m.TokenizerFor()
-			var ts model.Tokens
+			tok := m.Tokenizer()
+			var ts token.Tokens
 			bprobs = make([][]float32, len(s.texts))
 			for i, t := range s.texts {
 				bprobs[i] = baselineProbs(base, tokenStrings(tok, &ts, t))
@@ -479,8 +480,8 @@ func (f *evalFlags) baseline(a *app, m *model.Model) (*nb.Model, string, error) 
 			fmt.Fprintf(a.stderr, "convtag: warning: %d baseline training records have labels the model does not know and are not used: %s\n",
 				len(set.Records)-len(s.gold), unknownString(s.unknown))
 		}
-		tok := m.TokenizerFor()
-		var ts model.Tokens
+		tok := m.Tokenizer()
+		var ts token.Tokens
 		docs := make([][]string, len(s.texts))
 		for i, t := range s.texts {
 			docs[i] = tokenStrings(tok, &ts, t)
@@ -891,8 +892,8 @@ func runFolds(a *app, f *evalFlags, args []string) error {
 	if t.jobs == 0 {
 		t.jobs = runtime.GOMAXPROCS(0)
 	}
-	tok := model.NewTokenizer(model.TokenizerSettings{})
-	var ts model.Tokens
+	tok := token.New(token.Settings{})
+	var ts token.Tokens
 	all := make([]tokenized, len(set.Records))
 	for i, r := range set.Records {
 		all[i] = tokenized{tokens: tokenStrings(tok, &ts, r.Text), label: r.Labels[0], text: r.Text}
@@ -975,7 +976,7 @@ func trainFold(t *trainFlags, all []tokenized, y []int, labels []string, rest, t
 	}
 	words := model.BuildWords(counts, t.minCount, t.maxWords)
 	cfg := model.Config{Dim: t.dim, Widths: t.widths, Filters: t.filters, Hidden: t.hidden, Buckets: t.buckets}
-	m, err := model.New(cfg, model.TokenizerSettings{}, labels, words, t.seed)
+	m, err := model.New(cfg, token.Settings{}, labels, words, t.seed)
 	if err != nil {
 		return foldResult{}, err
 	}

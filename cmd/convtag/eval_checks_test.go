@@ -10,6 +10,7 @@ import (
 	"testing"
 
 	"convtag/model"
+	"convtag/model/token"
 )
 
 // evalVariant loads the committed eval model as a writable copy, lets edit
@@ -26,7 +27,7 @@ func evalVariant(t *testing.T, dir, name string, edit func(m *model.Model)) stri
 	}
 	edit(m)
 	p := filepath.Join(dir, name)
-	if err := m.Save(p); err != nil {
+	if err := m.Save(p, model.SaveOptions{}); err != nil {
 		t.Fatal(err)
 	}
 	return p
@@ -136,12 +137,12 @@ func TestEvalErrorLinesCapped(t *testing.T) {
 		labels = append(labels, fmt.Sprintf("berth-%04d", i))
 	}
 	cfg := model.Config{Dim: 4, Widths: []int{3}, Filters: 2, Buckets: 8}
-	m, err := model.New(cfg, model.TokenizerSettings{}, labels, []string{"ferry", "fog"}, 1)
+	m, err := model.New(cfg, token.Settings{}, labels, []string{"ferry", "fog"}, 1)
 	if err != nil {
 		t.Fatal(err)
 	}
 	many := filepath.Join(dir, "many.safetensors")
-	if err := m.Save(many); err != nil {
+	if err := m.Save(many, model.SaveOptions{}); err != nil {
 		t.Fatal(err)
 	}
 	var in bytes.Buffer

@@ -85,7 +85,7 @@ windows.`,
 			if path == "" {
 				fmt.Fprintln(a.stdout, builtinCaution)
 			}
-			if err := in.WriteText(a.stdout); err != nil {
+			if err := writeInfoText(a.stdout, &in); err != nil {
 				return err
 			}
 			if verify {

@@ -191,7 +191,7 @@ func TestTagReloadKeepsModelOnBadFile(t *testing.T) {
 		name  string
 		spoil func(t *testing.T, path string)
 	}{
-		// model.TokenizerSettings.Validate: max_tokens at most MaxTokensLimit.
+		// token.Settings.Validate: max_tokens at most MaxTokensLimit.
 		{"max_tokens out of range", func(t *testing.T, p string) {
 			patchHeader(t, p, func(h string) string {
 				return strings.Replace(h, `\"max_tokens\":0`, `\"max_tokens\":2000000`, 1)

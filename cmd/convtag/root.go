@@ -121,7 +121,6 @@ runs on the CPU. With no command it runs "convtag tag".
 // run is the whole program: it parses args, runs a command and returns the
 // exit status. Tests call it in memory.
 func run(args []string, stdin io.Reader, stdout, stderr io.Writer) int {
-	model.Version = version
 	if path := os.Getenv("CONVTAG_CPUPROFILE"); path != "" { // for developers; see DEVELOPERS.md
 		if stop, err := startCPUProfile(path); err == nil {
 			defer stop()

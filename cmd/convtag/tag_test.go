@@ -16,6 +16,7 @@ import (
 	"time"
 
 	"convtag/model"
+	"convtag/model/token"
 )
 
 // tagModel builds a small random model of the invented ferry scenario and
@@ -25,13 +26,13 @@ func tagModel(t testing.TB, dir, name string, labels []string, seed uint64) stri
 	t.Helper()
 	cfg := model.Config{Dim: 8, Widths: []int{3, 4, 5}, Filters: 4, Buckets: 64}
 	words := []string{"ferry", "harbour", "fog", "wind", "ticket", "deck", "storm", "rain", "late", "gull"}
-	m, err := model.New(cfg, model.TokenizerSettings{}, labels, words, seed)
+	m, err := model.New(cfg, token.Settings{}, labels, words, seed)
 	if err != nil {
 		t.Fatal(err)
 	}
 	model.FoldModel(m, false)
 	p := filepath.Join(dir, name)
-	if err := m.Save(p); err != nil {
+	if err := m.Save(p, model.SaveOptions{}); err != nil {
 		t.Fatal(err)
 	}
 	return p
@@ -420,13 +421,13 @@ func BenchmarkTagVsJq(b *testing.B) {
 		words[i] = fmt.Sprintf("w%dx", i)
 	}
 	cfg := model.Config{Dim: 300, Widths: []int{3, 4, 5}, Filters: 100, Buckets: 1000}
-	m, err := model.New(cfg, model.TokenizerSettings{}, []string{"crossing", "weather", "other"}, words, 1)
+	m, err := model.New(cfg, token.Settings{}, []string{"crossing", "weather", "other"}, words, 1)
 	if err != nil {
 		b.Fatal(err)
 	}
 	model.FoldModel(m, false)
 	mp := filepath.Join(dir, "d300.safetensors")
-	if err := m.Save(mp); err != nil {
+	if err := m.Save(mp, model.SaveOptions{}); err != nil {
 		b.Fatal(err)
 	}
 	const n = 200_000

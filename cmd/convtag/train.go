@@ -21,7 +21,9 @@ import (
 	"github.com/spf13/cobra"
 
 	"convtag/model"
+	"convtag/model/metrics"
 	"convtag/model/nb"
+	"convtag/model/token"
 	"convtag/model/vectors"
 	"convtag/stream"
 )
@@ -223,8 +225,8 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 	if err != nil {
 		return err
 	}
-	tok := model.NewTokenizer(model.TokenizerSettings{})
-	var ts model.Tokens
+	tok := token.New(token.Settings{})
+	var ts token.Tokens
 	cut := func(recs []stream.Labelled) []tokenized {
 		out := make([]tokenized, len(recs))
 		for i, r := range recs {
@@ -317,7 +319,7 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 	if err := cfg.Validate(); err != nil {
 		return usageErr("", "train: %w", err)
 	}
-	m, err := model.New(cfg, model.TokenizerSettings{}, labels, words, f.seed)
+	m, err := model.New(cfg, token.Settings{}, labels, words, f.seed)
 	if err != nil {
 		return withCode(exitFailure, fmt.Errorf("train: %w", err))
 	}
@@ -417,7 +419,7 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 	}
 	bs := baselineScores{Kind: "multinomial naive Bayes, lowercase unigrams+bigrams, Laplace smoothing"}
 	if len(dev) > 0 {
-		bs.DevAccuracy, bs.DevMacroF1 = model.Accuracy(gold, pred), model.MacroF1(gold, pred, len(labels))
+		bs.DevAccuracy, bs.DevMacroF1 = metrics.Accuracy(gold, pred), metrics.MacroF1(metrics.PerLabel(metrics.Confusion(gold, pred, len(labels)), nil))
 	}
 	// The baseline is always stored, whatever its size (it grows with the
 	// distinct unigrams and bigrams): it is a byte tensor that opening
@@ -458,7 +460,7 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 	if ctx.Err() != nil {
 		return withCode(exitFailure, errInterrupted)
 	}
-	if err := m.Save(f.output); err != nil {
+	if err := m.Save(f.output, model.SaveOptions{Version: version}); err != nil {
 		return withCode(exitFailure, fmt.Errorf("train: %w", err))
 	}
 	w := a.stdout

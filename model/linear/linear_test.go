@@ -87,7 +87,7 @@ func TestPredictorNoAllocs(t *testing.T) {
 	if n := testing.AllocsPerRun(100, func() { p.Probs(d) }); n != 0 {
 		t.Errorf("Probs: %v allocations per text", n)
 	}
-	var tk Tokens = bt // boxed once, as a caller holding a *model.Tokens never has to
+	var tk Tokens = bt // boxed once, as a caller holding a *token.Tokens never has to
 	if n := testing.AllocsPerRun(100, func() { p.ProbsOf(tk) }); n != 0 {
 		t.Errorf("ProbsOf: %v allocations per text", n)
 	}

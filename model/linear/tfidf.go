@@ -13,7 +13,7 @@ type Entry struct {
 }
 
 // Tokens is a text's tokens as the project's tokenizer hands them out
-// (model.Tokens has this method set), read without copying.
+// (token.Tokens has this method set), read without copying.
 type Tokens interface {
 	Len() int
 	At(i int) []byte

@@ -10,6 +10,7 @@ import (
 	"convtag/model/internal/uci"
 	"convtag/model/linear"
 	"convtag/model/nb"
+	"convtag/model/token"
 )
 
 // TestUCIMatchesSklearn runs the baseline recipe on the UCI Sentiment
@@ -42,8 +43,8 @@ func TestUCIMatchesSklearn(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	tok := model.NewTokenizer(model.TokenizerSettings{})
-	var ts model.Tokens
+	tok := token.New(token.Settings{})
+	var ts token.Tokens
 	docs := make([][]string, len(sents))
 	labels := make([]int, len(sents))
 	for i, s := range sents {

@@ -7,7 +7,7 @@
 // distribution, sub-sampling, the update rule and the parallel schedule.
 // Text comes in through a Corpus, which the caller builds from files,
 // decompressors and JSON keys; the words are cut by the model's tokenizer
-// (model.NewTokenizer) so that the vectors' words are the tokens a model
+// (token.New) so that the vectors' words are the tokens a model
 // will look up. The result is a *vectors.Set, which package model/vectors
 // writes in the common file formats.
 //

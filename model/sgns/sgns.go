@@ -13,7 +13,8 @@ import (
 	"sync/atomic"
 	"time"
 
-	"convtag/model"
+	"convtag/model/internal/kernel"
+	"convtag/model/token"
 	"convtag/model/vectors"
 )
 
@@ -90,7 +91,7 @@ type Options struct {
 	Jobs int
 	// Tokenizer cuts the text; its MaxTokens is replaced by
 	// MaxRecordTokens.
-	Tokenizer model.TokenizerSettings
+	Tokenizer token.Settings
 	// Progress, when set, is called about every ProgressEvery (default one
 	// second) and once at the end of each phase, from one goroutine at a
 	// time.
@@ -207,7 +208,7 @@ func Train(ctx context.Context, c Corpus, o Options) (*Result, error) {
 	}
 	tokSet := o.Tokenizer
 	tokSet.MaxTokens = MaxRecordTokens
-	tok := model.NewTokenizer(tokSet)
+	tok := token.New(tokSet)
 
 	start := time.Now()
 	var counted atomic.Int64
@@ -367,12 +368,12 @@ func storable(tok []byte) bool {
 	return len(tok) <= vectors.MaxWordBytes && !strings.ContainsAny(string(tok), " \t\r\n")
 }
 
-func countWords(ctx context.Context, c Corpus, tok *model.Tokenizer, o Options, counted *atomic.Int64) (*vocab, error) {
+func countWords(ctx context.Context, c Corpus, tok *token.Tokenizer, o Options, counted *atomic.Int64) (*vocab, error) {
 	type local struct {
 		counts          map[string]int64
 		records, tokens int64
 		reduce          int64
-		ts              model.Tokens
+		ts              token.Tokens
 	}
 	locals := make([]local, o.Jobs)
 	for k := range locals {
@@ -584,7 +585,7 @@ func (t *trainer) alpha(done int64) float64 {
 	return max(a, t.o.Alpha*minAlphaFraction)
 }
 
-func (t *trainer) run(ctx context.Context, c Corpus, tok *model.Tokenizer) error {
+func (t *trainer) run(ctx context.Context, c Corpus, tok *token.Tokenizer) error {
 	return pipeline(ctx, c, t.o.Jobs, func(k int, b *batch) error {
 		t.workers[k].batch(tok, b)
 		return nil
@@ -595,13 +596,13 @@ func (t *trainer) run(ctx context.Context, c Corpus, tok *model.Tokenizer) error
 type worker struct {
 	t     *trainer
 	rng   *rand.PCG
-	ts    model.Tokens
+	ts    token.Tokens
 	ids   []int32
 	negs  []int32
 	neu1e []float32
 }
 
-func (w *worker) batch(tok *model.Tokenizer, b *batch) {
+func (w *worker) batch(tok *token.Tokenizer, b *batch) {
 	t := w.t
 	start := 0
 	for _, end := range b.ends {
@@ -668,6 +669,7 @@ func (w *worker) sentence(ids []int32, alpha float32) {
 // word, the reverse of the paper's wording; over a window the two visit
 // the same pairs. neu1e is scratch of length d.
 func step(syn1 []float32, d int, l1, neu1e []float32, centre int32, negs []int32, alpha float32) {
+	kern := kernel.Active
 	clear(neu1e)
 	for k := -1; k < len(negs); k++ {
 		target, label := centre, float32(1)
@@ -675,11 +677,11 @@ func step(syn1 []float32, d int, l1, neu1e []float32, centre int32, negs []int32
 			target, label = negs[k], 0
 		}
 		l2 := syn1[int(target)*d : (int(target)+1)*d]
-		g := (label - sigmoid(dot(l1, l2))) * alpha
-		axpy(g, l2, neu1e)
-		axpy(g, l1, l2)
+		g := (label - sigmoid(kern.Dot(l1, l2))) * alpha
+		kern.Axpy(g, l2, neu1e)
+		kern.Axpy(g, l1, l2)
 	}
-	axpy(1, neu1e, l1)
+	kern.Axpy(1, neu1e, l1)
 }
 
 // sigmoid is the logistic function, exact to float32 rounding (the

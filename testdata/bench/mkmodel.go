@@ -17,6 +17,7 @@ import (
 	"strings"
 
 	"convtag/model"
+	"convtag/model/token"
 )
 
 func main() {
@@ -63,10 +64,10 @@ func run() error {
 		}
 		cfg.Widths = append(cfg.Widths, w)
 	}
-	m, err := model.New(cfg, model.TokenizerSettings{}, strings.Split(*labels, ","), list, *seed)
+	m, err := model.New(cfg, token.Settings{}, strings.Split(*labels, ","), list, *seed)
 	if err != nil {
 		return err
 	}
 	model.FoldModel(m, *half)
-	return m.Save(*out)
+	return m.Save(*out, model.SaveOptions{})
 }

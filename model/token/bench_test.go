@@ -1,4 +1,4 @@
-package model
+package token
 
 import (
 	"bytes"
@@ -64,7 +64,7 @@ func tokReportLines(b *testing.B) {
 // the least a tokenizer does. "uniseg" is uniseg.FirstWord alone over the
 // line, the floor of the general path.
 func BenchmarkTokenize(b *testing.B) {
-	tk := NewTokenizer(TokenizerSettings{})
+	tk := New(Settings{})
 	for _, set := range []struct {
 		name  string
 		lines []string

@@ -1,6 +1,6 @@
 //go:build unix
 
-package model
+package kernel
 
 import (
 	"math/rand/v2"
@@ -32,7 +32,7 @@ func guarded(t *testing.T, n int) []byte {
 // that exercise whole, overlapping and masked chunks.
 func TestFoldKernelsStayInBounds(t *testing.T) {
 	rng := rand.New(rand.NewPCG(8, 8))
-	for _, k := range allKernels {
+	for _, k := range All {
 		for _, f := range []int{5, 8, 17, 36, 64, 65, 100, 127, 130, 200} {
 			w, nr := 5, 9
 			tb := guarded(t, nr*w*f*4)
@@ -47,10 +47,10 @@ func TestFoldKernelsStayInBounds(t *testing.T) {
 			}
 			rows := []int32{int32(nr - 1), 0, int32(nr - 1), 3, int32(nr - 1)}
 			mx, win, acc := make([]float32, f), make([]int32, f), make([]float32, f)
-			k.foldF32(tab32, w, f, rows, bias, mx, win, acc)
-			k.foldF16(tab16, w, f, rows, bias, mx, win, acc)
-			k.foldF32(tab32, w, f, rows, bias, mx, nil, acc)
-			k.foldF16(tab16, w, f, rows, bias, mx, nil, acc)
+			k.FoldF32(tab32, w, f, rows, bias, mx, win, acc)
+			k.FoldF16(tab16, w, f, rows, bias, mx, win, acc)
+			k.FoldF32(tab32, w, f, rows, bias, mx, nil, acc)
+			k.FoldF16(tab16, w, f, rows, bias, mx, nil, acc)
 		}
 		for _, n := range []int{1, 5, 16, 17, 33, 64, 100} {
 			ab := guarded(t, n*4)
@@ -58,8 +58,8 @@ func TestFoldKernelsStayInBounds(t *testing.T) {
 			xb := guarded(t, (3*7+n)*4)
 			x := unsafe.Slice((*float32)(unsafe.Pointer(&xb[0])), 3*7+n)
 			var out [4]float32
-			k.dot(a, x[3*7:])
-			k.dot4(a, x, 7, &out)
+			k.Dot(a, x[3*7:])
+			k.Dot4(a, x, 7, &out)
 		}
 	}
 }

@@ -1,4 +1,4 @@
-package model
+package token
 
 import (
 	"bytes"
@@ -23,12 +23,12 @@ func FuzzTokenize(f *testing.F) {
 	f.Add([]byte("mail desk@ferry.example"), uint8(2))
 	f.Add([]byte("a b c d e f g h"), uint8(3<<2))
 	f.Fuzz(func(t *testing.T, text []byte, flags uint8) {
-		set := TokenizerSettings{
+		set := Settings{
 			KeepPunct:      flags&1 != 0,
 			NoPlaceholders: flags&2 != 0,
 			MaxTokens:      int(flags >> 2 & 7), // 0: the default limit
 		}
-		tk := NewTokenizer(set)
+		tk := New(set)
 		orig := bytes.Clone(text)
 		var ts Tokens
 		tk.Tokenize(&ts, text)

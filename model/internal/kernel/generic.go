@@ -1,53 +1,4 @@
-package model
-
-// The hot loops of the forward pass, in plain Go. They are compiled on every
-// architecture: elsewhere they are the only implementation, and on amd64
-// they are the reference the assembly is tested against. kernel_amd64.go
-// replaces activeKernels at start-up when the CPU has AVX2 or AVX-512.
-
-// kernels is one implementation of the forward pass's inner loops.
-type kernels struct {
-	name string
-
-	// foldF32 runs one width's folded convolution over rows (len >= 1,
-	// every entry a valid row of tab) with max-over-time pooling:
-	//
-	//	pre[p][c] = bias[c] + T[rows[p]][0][c] + ... + T[rows[p+k]][k][c]   for k < w, p+k < n
-	//	mx[c]     = max(0, max_p pre[p][c]); win[c] = the first p reaching mx[c], or -1 if mx[c] == 0
-	//
-	// for every filter c < f, where T is tab laid out [rows][w][f]. The taps
-	// are added to the bias in order k = 0, 1, ..., in float32, so every
-	// implementation gives bit-identical results. With win nil the winners
-	// are not tracked, which saves work when no one asks for them; mx is
-	// the same either way. acc is scratch of at least f values
-	// (implementations may ignore it).
-	foldF32 func(tab []float32, w, f int, rows []int32, bias, mx []float32, win []int32, acc []float32)
-	// foldF16 is foldF32 for a table of IEEE half-precision values; each
-	// is widened to float32 exactly before it is added.
-	foldF16 func(tab []uint16, w, f int, rows []int32, bias, mx []float32, win []int32, acc []float32)
-	// dot returns the dot product of a and b[:len(a)].
-	dot func(a, b []float32) float32
-	// dot4 sets out[i] to the dot product of a and
-	// x[i*stride : i*stride+len(a)] for i < 4.
-	dot4 func(a, x []float32, stride int, out *[4]float32)
-}
-
-// genericKernels is the plain-Go implementation.
-var genericKernels = kernels{
-	name:    "generic",
-	foldF32: foldGenericF32,
-	foldF16: foldGenericF16,
-	dot:     dotGeneric,
-	dot4:    dot4Generic,
-}
-
-// activeKernels is the implementation new Predictors use: the fastest the
-// CPU supports, chosen once at start-up.
-var activeKernels = &genericKernels
-
-// allKernels lists every implementation usable on this CPU, generic first;
-// tests compare them.
-var allKernels = []*kernels{&genericKernels}
+package kernel
 
 func foldGenericF32(tab []float32, w, f int, rows []int32, bias, mx []float32, win []int32, acc []float32) {
 	n := len(rows)
@@ -142,16 +93,6 @@ func dot4Generic(a, x []float32, stride int, out *[4]float32) {
 		out[i] = dotGeneric(a, x[i*stride:])
 	}
 }
-
-// f16Hardware holds the CPU's own half-precision conversions (F16C), the
-// reference tests check F32ToF16 and F16ToF32 against; nil where there are
-// none. n is a multiple of 8.
-type f16Hardware struct {
-	toF16 func(dst *uint16, src *float32, n int)
-	toF32 func(dst *float32, src *uint16, n int)
-}
-
-var hwF16 *f16Hardware
 
 // chunkPlan covers columns [0, f) (f >= vw) with chunks of vectors of vw
 // lanes, calling run(c, v, masks) for v vectors starting at column c:

@@ -1,4 +1,4 @@
-package model
+package token
 
 import (
 	"bytes"
@@ -14,7 +14,7 @@ import (
 )
 
 // Placeholder tokens. Each stands for a whole URL, e-mail address, @handle
-// or number when placeholders are on (TokenizerSettings.NoPlaceholders
+// or number when placeholders are on (Settings.NoPlaceholders
 // false). They are spelt with angle brackets because no input text can
 // produce them: "<" and ">" are tokens of their own and never part of a
 // word.
@@ -88,7 +88,7 @@ const (
 //
 // The zero Tokenizer has the zero (default) settings.
 type Tokenizer struct {
-	s     TokenizerSettings
+	s     Settings
 	chunk int // bytes taken at a time; 0: tokFirstChunk growing to tokChunk (tests set it small)
 }
 
@@ -99,11 +99,11 @@ var caseFold transform.SpanningTransformer = func() *cases.Caser {
 	return &c
 }()
 
-// NewTokenizer returns a tokenizer with settings s.
-func NewTokenizer(s TokenizerSettings) *Tokenizer { return &Tokenizer{s: s} }
+// New returns a tokenizer with settings s.
+func New(s Settings) *Tokenizer { return &Tokenizer{s: s} }
 
 // Settings returns the tokenizer's settings.
-func (t *Tokenizer) Settings() TokenizerSettings { return t.s }
+func (t *Tokenizer) Settings() Settings { return t.s }
 
 // Tokens is reusable storage for one record's tokens. The zero value is
 // empty and ready to use. Token i is valid until the next Tokenize or Reset.

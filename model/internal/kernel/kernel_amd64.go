@@ -1,28 +1,36 @@
-//go:build !purego
+//go:build amd64 && !purego
 
-package model
+package kernel
 
 import "golang.org/x/sys/cpu"
 
-// The assembly kernels (kernel_amd64.s). At start-up the widest vector
-// set the CPU and OS support is chosen: AVX-512 (16 floats per register),
-// else AVX2 with FMA and F16C (8 floats), else the generic Go code. Build
-// with -tags purego to use the generic code only.
+// The assembly kernels (fold_amd64.s for the forward pass, train_amd64.s
+// for training). At start-up the widest vector set the CPU and OS support
+// is chosen: AVX-512 (16 floats per register), else AVX2 with FMA and F16C
+// (8 floats), else the generic Go code.
 
-var avx512Kernels = kernels{
-	name:    "avx512",
-	foldF32: foldAVX512F32,
-	foldF16: foldAVX512F16,
-	dot:     dotAVX512Go,
-	dot4:    dot4AVX512Go,
+var avx512 = &Set{
+	Name:     "avx512",
+	FoldF32:  foldAVX512F32,
+	FoldF16:  foldAVX512F16,
+	Dot:      dotAVX512Go,
+	Dot4:     dot4AVX512Go,
+	Axpy:     axpyAVX512Go,
+	Conv:     convAVX2Go,
+	Conv2:    conv2AVX512Go,
+	Adadelta: adadeltaAVX2Go,
 }
 
-var avx2Kernels = kernels{
-	name:    "avx2",
-	foldF32: foldAVX2F32,
-	foldF16: foldAVX2F16,
-	dot:     dotAVX2Go,
-	dot4:    dot4AVX2Go,
+var avx2 = &Set{
+	Name:     "avx2",
+	FoldF32:  foldAVX2F32,
+	FoldF16:  foldAVX2F16,
+	Dot:      dotAVX2Go,
+	Dot4:     dot4AVX2Go,
+	Axpy:     axpyAVX2Go,
+	Conv:     convAVX2Go,
+	Conv2:    conv2AVX2Go,
+	Adadelta: adadeltaAVX2Go,
 }
 
 var (
@@ -32,13 +40,13 @@ var (
 
 func init() {
 	if hasAVX2 {
-		allKernels = append(allKernels, &avx2Kernels)
-		activeKernels = &avx2Kernels
-		hwF16 = &f16Hardware{toF16: cvtPS2PH, toF32: cvtPH2PS}
+		All = append(All, avx2)
+		Active = avx2
+		HWF16 = &F16Hardware{ToF16: cvtPS2PH, ToF32: cvtPH2PS}
 	}
 	if hasAVX512 {
-		allKernels = append(allKernels, &avx512Kernels)
-		activeKernels = &avx512Kernels
+		All = append(All, avx512)
+		Active = avx512
 	}
 }
 
@@ -164,18 +172,11 @@ func foldAVX2F16(tab []uint16, w, f int, rows []int32, bias, mx []float32, win [
 	})
 }
 
-// prefetchDistance is how many positions ahead of its window a fold
-// kernel prefetches a row. Measured on the development machine (AVX-512,
-// Zipf-distributed rows of a 50,000-word table, A/B interleaved): 8 took
-// about 10% off the F32 pass and 35-40% off the F16 pass; 16 was no
-// better than 8. Benchmarks set it to 0 to measure the difference.
-var prefetchDistance = 8
-
 // pfAt is the prefetch distance for the chunk at column c: only the first
 // chunk prefetches, since later chunks find the rows in cache.
 func pfAt(c int) int {
 	if c == 0 {
-		return prefetchDistance
+		return Prefetch
 	}
 	return 0
 }
@@ -193,12 +194,12 @@ func winAt(win []int32, c int) *int32 {
 // checked too: the assembly trusts them.
 func checkFoldArgs(tabLen, w, f int, rows []int32, bias, mx []float32, win []int32) {
 	if len(rows) == 0 || w < 1 || len(bias) < f || len(mx) < f || win != nil && len(win) < f || tabLen%(w*f) != 0 {
-		panic("model: bad fold kernel arguments")
+		panic("kernel: bad fold kernel arguments")
 	}
 	nr := uint32(tabLen / (w * f))
 	for _, r := range rows {
 		if uint32(r) >= nr {
-			panic("model: fold kernel row out of range")
+			panic("kernel: fold kernel row out of range")
 		}
 	}
 }
@@ -235,4 +236,92 @@ func dot4AVX2Go(a, x []float32, stride int, out *[4]float32) {
 	}
 	_ = x[3*stride+len(a)-1]
 	dot4AVX2(&a[0], &x[0], stride, len(a), out)
+}
+
+//go:noescape
+func trConvAVX2(a *float32, lda int, b *float32, k int, c *float32, ldc int)
+
+//go:noescape
+func trConv2AVX512(a *float32, lda int, b *float32, k int, c *float32, ldc int)
+
+//go:noescape
+func adadeltaAVX2(lr float32, w, grad, sq, acc *float32, n int)
+
+//go:noescape
+func trAxpyAVX2(alpha float32, x, y *float32, n int)
+
+//go:noescape
+func trAxpyAVX512(alpha float32, x, y *float32, n int)
+
+func convAVX2Go(a []float32, lda int, b []float32, k int, c []float32, ldc int) {
+	if k == 0 {
+		convGeneric(a, lda, b, k, c, ldc)
+		return
+	}
+	// Bounds the assembly relies on.
+	_ = a[(ConvRows-1)*lda+k-1]
+	_ = b[k*ConvPanel-1]
+	_ = c[(ConvRows-1)*ldc+ConvPanel-1]
+	trConvAVX2(&a[0], lda, &b[0], k, &c[0], ldc)
+}
+
+func conv2AVX2Go(a []float32, lda int, b []float32, k int, c []float32, ldc int) {
+	convAVX2Go(a, lda, b[:k*ConvPanel], k, c, ldc)
+	convAVX2Go(a, lda, b[k*ConvPanel:], k, c[ConvPanel:], ldc)
+}
+
+func conv2AVX512Go(a []float32, lda int, b []float32, k int, c []float32, ldc int) {
+	if k == 0 {
+		conv2AVX2Go(a, lda, b, k, c, ldc)
+		return
+	}
+	_ = a[(ConvRows-1)*lda+k-1]
+	_ = b[2*k*ConvPanel-1]
+	_ = c[(ConvRows-1)*ldc+2*ConvPanel-1]
+	trConv2AVX512(&a[0], lda, &b[0], k, &c[0], ldc)
+}
+
+// axpyAVX2Go runs eight lanes at a time and the tail in Go. Each element
+// is one rounding of alpha*x+y either way except in the Go tail, which
+// the AVX-512 set shares, so the two vector sets agree bit for bit.
+func axpyAVX2Go(alpha float32, x, y []float32) {
+	n := len(x)
+	if n < 8 {
+		axpyGeneric(alpha, x, y)
+		return
+	}
+	y = y[:n]
+	m := n &^ 7
+	trAxpyAVX2(alpha, &x[0], &y[0], m)
+	if m < n {
+		axpyGeneric(alpha, x[m:], y[m:])
+	}
+}
+
+func axpyAVX512Go(alpha float32, x, y []float32) {
+	n := len(x)
+	if n < 16 {
+		axpyAVX2Go(alpha, x, y)
+		return
+	}
+	y = y[:n]
+	m := n &^ 15
+	trAxpyAVX512(alpha, &x[0], &y[0], m)
+	if m < n {
+		axpyAVX2Go(alpha, x[m:], y[m:])
+	}
+}
+
+func adadeltaAVX2Go(lr float32, w, g, sq, acc []float32) {
+	n := len(g)
+	if n < 8 {
+		adadeltaGeneric(lr, w, g, sq, acc)
+		return
+	}
+	w, sq, acc = w[:n], sq[:n], acc[:n]
+	m := n &^ 7
+	adadeltaAVX2(lr, &w[0], &g[0], &sq[0], &acc[0], m)
+	if m < n {
+		adadeltaGeneric(lr, w[m:], g[m:], sq[m:], acc[m:])
+	}
 }

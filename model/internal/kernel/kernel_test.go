@@ -1,4 +1,4 @@
-package model
+package kernel
 
 import (
 	"math"
@@ -49,13 +49,13 @@ func fwNewFoldCase(rng *rand.Rand, w, f, nr, n int, coarse bool) fwFoldCase {
 }
 
 func TestFoldKernelsMatchGeneric(t *testing.T) {
-	if len(allKernels) == 1 {
+	if len(All) == 1 {
 		t.Skip("no assembly kernels on this CPU or build")
 	}
 	rng := rand.New(rand.NewPCG(1, 2))
 	filters := []int{1, 3, 7, 8, 9, 15, 16, 17, 24, 31, 32, 33, 47, 48, 63, 64, 65, 80, 100, 127, 128, 130, 300}
-	for _, k := range allKernels[1:] {
-		t.Run(k.name, func(t *testing.T) {
+	for _, k := range All[1:] {
+		t.Run(k.Name, func(t *testing.T) {
 			for trial := range 400 {
 				f := filters[trial%len(filters)]
 				w := 1 + rng.IntN(6)
@@ -68,10 +68,10 @@ func TestFoldKernelsMatchGeneric(t *testing.T) {
 					gotMx[f], gotWin[f] = 42, 42 // must not be written
 					if half {
 						foldGenericF16(c.t16, w, f, c.rows, c.bias, wantMx, wantWin, acc)
-						k.foldF16(c.t16, w, f, c.rows, c.bias, gotMx[:f], gotWin[:f], acc)
+						k.FoldF16(c.t16, w, f, c.rows, c.bias, gotMx[:f], gotWin[:f], acc)
 					} else {
 						foldGenericF32(c.t32, w, f, c.rows, c.bias, wantMx, wantWin, acc)
-						k.foldF32(c.t32, w, f, c.rows, c.bias, gotMx[:f], gotWin[:f], acc)
+						k.FoldF32(c.t32, w, f, c.rows, c.bias, gotMx[:f], gotWin[:f], acc)
 					}
 					if gotMx[f] != 42 || gotWin[f] != 42 {
 						t.Fatalf("w=%d f=%d n=%d half=%v: wrote past the last filter", w, f, n, half)
@@ -80,9 +80,9 @@ func TestFoldKernelsMatchGeneric(t *testing.T) {
 					noMx := make([]float32, f+1)
 					noMx[f] = 42
 					if half {
-						k.foldF16(c.t16, w, f, c.rows, c.bias, noMx[:f], nil, acc)
+						k.FoldF16(c.t16, w, f, c.rows, c.bias, noMx[:f], nil, acc)
 					} else {
-						k.foldF32(c.t32, w, f, c.rows, c.bias, noMx[:f], nil, acc)
+						k.FoldF32(c.t32, w, f, c.rows, c.bias, noMx[:f], nil, acc)
 					}
 					if noMx[f] != 42 {
 						t.Fatalf("w=%d f=%d n=%d half=%v: wrote past the last filter without winners", w, f, n, half)
@@ -136,21 +136,21 @@ func TestFoldGenericDefinition(t *testing.T) {
 
 func TestDotKernels(t *testing.T) {
 	rng := rand.New(rand.NewPCG(5, 6))
-	for _, k := range allKernels {
-		t.Run(k.name, func(t *testing.T) {
+	for _, k := range All {
+		t.Run(k.Name, func(t *testing.T) {
 			for n := range 300 {
 				a := fwRandFloats(rng, n)
 				const stride = 307
 				x := fwRandFloats(rng, 3*stride+n)
 				var out [4]float32
-				k.dot4(a, x, stride, &out)
+				k.Dot4(a, x, stride, &out)
 				for i := range 4 {
 					want, scale := fwDot64(a, x[i*stride:i*stride+n])
 					if d := math.Abs(float64(out[i]) - want); d > 1e-6*scale+1e-30 {
 						t.Fatalf("dot4 n=%d row %d: %v, float64 %v", n, i, out[i], want)
 					}
 				}
-				got := k.dot(a, x)
+				got := k.Dot(a, x)
 				want, scale := fwDot64(a, x[:n])
 				if d := math.Abs(float64(got) - want); d > 1e-6*scale+1e-30 {
 					t.Fatalf("dot n=%d: %v, float64 %v", n, got, want)
@@ -228,7 +228,7 @@ func TestF16Known(t *testing.T) {
 // 65,536 halves, every float32 near a half rounding point, and a spread of
 // other bit patterns.
 func TestF16Hardware(t *testing.T) {
-	if hwF16 == nil {
+	if HWF16 == nil {
 		t.Skip("no F16C on this CPU or build")
 	}
 	hs := make([]uint16, 1<<16)
@@ -236,7 +236,7 @@ func TestF16Hardware(t *testing.T) {
 		hs[i] = uint16(i)
 	}
 	fs := make([]float32, len(hs))
-	hwF16.toF32(&fs[0], &hs[0], len(hs))
+	HWF16.ToF32(&fs[0], &hs[0], len(hs))
 	for i, h := range hs {
 		got := F16ToF32(h)
 		if math.IsNaN(float64(fs[i])) {
@@ -271,7 +271,7 @@ func TestF16Hardware(t *testing.T) {
 		in = append(in, 0)
 	}
 	want := make([]uint16, len(in))
-	hwF16.toF16(&want[0], &in[0], len(in))
+	HWF16.ToF16(&want[0], &in[0], len(in))
 	for i, f := range in {
 		got := F32ToF16(f)
 		if math.IsNaN(float64(f)) {

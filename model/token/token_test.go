@@ -1,4 +1,4 @@
-package model
+package token
 
 import (
 	"bufio"
@@ -326,8 +326,8 @@ func tokRefNormalize(text []byte) []byte {
 // tokRefTokenize is the tokenizer's whole-text path (normalise all, then
 // find placeholders and words over all of it, stop at the limit): the
 // reference the incremental Tokenize is compared with.
-func tokRefTokenize(set TokenizerSettings, text []byte) []string {
-	tk := NewTokenizer(set)
+func tokRefTokenize(set Settings, text []byte) []string {
+	tk := New(set)
 	var ts Tokens
 	if isASCII(text) {
 		tk.tokenizeNormal(&ts, appendLowerASCII(nil, text), cutASCII)
@@ -339,15 +339,15 @@ func tokRefTokenize(set TokenizerSettings, text []byte) []string {
 
 type tokenizeCase struct {
 	name string
-	set  TokenizerSettings
+	set  Settings
 	in   string
 	want []string
 }
 
 var (
-	tokDefault = TokenizerSettings{}
-	tokPunct   = TokenizerSettings{KeepPunct: true}
-	tokRaw     = TokenizerSettings{NoPlaceholders: true}
+	tokDefault = Settings{}
+	tokPunct   = Settings{KeepPunct: true}
+	tokRaw     = Settings{NoPlaceholders: true}
 )
 
 // tokenizeCases: expected tokens follow from the rules in the Tokenizer
@@ -453,15 +453,15 @@ var tokenizeCases = []tokenizeCase{
 	{"invalid utf-8", tokDefault, "ab\xffcd \xc3\x28 \xe2\x82", []string{"ab", "\uFFFD", "cd", "\uFFFD", "\uFFFD"}},
 	{"invalid run", tokDefault, "\xff\xfe\xfd", []string{"\uFFFD"}},
 	// Limit: Settings().Limit() tokens, placeholders counted.
-	{"limit", TokenizerSettings{MaxTokens: 3}, "one two three four five", []string{"one", "two", "three"}},
-	{"limit placeholder", TokenizerSettings{MaxTokens: 2}, "see https://ferry.example now", []string{"see", PlaceholderURL}},
-	{"limit number", TokenizerSettings{MaxTokens: 1}, "7 8 9", []string{PlaceholderNumber}},
+	{"limit", Settings{MaxTokens: 3}, "one two three four five", []string{"one", "two", "three"}},
+	{"limit placeholder", Settings{MaxTokens: 2}, "see https://ferry.example now", []string{"see", PlaceholderURL}},
+	{"limit number", Settings{MaxTokens: 1}, "7 8 9", []string{PlaceholderNumber}},
 }
 
 func TestTokenize(t *testing.T) {
 	for _, c := range tokenizeCases {
 		t.Run(c.name, func(t *testing.T) {
-			got := tokenizeStrings(NewTokenizer(c.set), c.in)
+			got := tokenizeStrings(New(c.set), c.in)
 			if !reflect.DeepEqual(got, c.want) && !(len(got) == 0 && len(c.want) == 0) {
 				t.Errorf("Tokenize(%+q) = %+q, want %+q", c.in, got, c.want)
 			}
@@ -472,7 +472,7 @@ func TestTokenize(t *testing.T) {
 // TestTokenizeDefaultLimit: DefaultMaxTokens (400) tokens at most.
 func TestTokenizeDefaultLimit(t *testing.T) {
 	text := strings.Repeat("sail 7 https://ferry.example @orla ", 300)
-	tk := NewTokenizer(TokenizerSettings{})
+	tk := New(Settings{})
 	for _, general := range []bool{false, true} {
 		var ts Tokens
 		if general {
@@ -493,17 +493,17 @@ func TestTokenizeZeroValue(t *testing.T) {
 	var ts Tokens
 	for _, in := range []string{"Straße nach Øsk", "ASCII only"} {
 		tk.Tokenize(&ts, []byte(in))
-		if got, want := tokStrings(&ts), tokenizeStrings(NewTokenizer(TokenizerSettings{}), in); !reflect.DeepEqual(got, want) {
+		if got, want := tokStrings(&ts), tokenizeStrings(New(Settings{}), in); !reflect.DeepEqual(got, want) {
 			t.Errorf("zero Tokenizer: %q, want %q", got, want)
 		}
 	}
-	if tk.Settings() != (TokenizerSettings{}) || tk.Settings().Limit() != DefaultMaxTokens {
+	if tk.Settings() != (Settings{}) || tk.Settings().Limit() != DefaultMaxTokens {
 		t.Errorf("zero Tokenizer settings %+v", tk.Settings())
 	}
 }
 
 // tokSettings are the settings the differential tests compare under.
-var tokSettings = []TokenizerSettings{
+var tokSettings = []Settings{
 	{}, {KeepPunct: true}, {NoPlaceholders: true}, {KeepPunct: true, NoPlaceholders: true}, {MaxTokens: 3}, {KeepPunct: true, MaxTokens: 1},
 }
 
@@ -540,7 +540,7 @@ func tokCompareASCII(s []byte) string {
 	}
 	var fast, general Tokens
 	for _, set := range tokSettings {
-		tk := NewTokenizer(set)
+		tk := New(set)
 		tk.tokenizeASCII(&fast, s)
 		for _, mode := range []int{cutUniseg, cutHybrid} {
 			tk.tokenizeGeneral(&general, s, mode)
@@ -561,7 +561,7 @@ func tokCompareHybrid(s []byte) string {
 	}
 	var a, b Tokens
 	for _, set := range tokSettings {
-		tk := NewTokenizer(set)
+		tk := New(set)
 		tk.tokenizeGeneral(&a, s, cutHybrid)
 		tk.tokenizeGeneral(&b, s, cutUniseg)
 		if got, want := tokStrings(&a), tokStrings(&b); !reflect.DeepEqual(got, want) {
@@ -641,17 +641,17 @@ func TestTokenizeAllocs(t *testing.T) {
 	long := strings.Repeat(strings.Join(tokBenchUnicode, " "), 30)
 	for _, c := range []struct {
 		name  string
-		set   TokenizerSettings
+		set   Settings
 		lines []string
 	}{
-		{"ascii", TokenizerSettings{}, tokBenchASCII},
-		{"mixed", TokenizerSettings{}, tokBenchMixed},
-		{"unicode", TokenizerSettings{}, tokBenchUnicode},
-		{"long unicode, limit reached", TokenizerSettings{}, []string{long}},
-		{"long unicode, no limit", TokenizerSettings{MaxTokens: MaxTokensLimit}, []string{long}},
-		{"U+FDFA", TokenizerSettings{MaxTokens: 60}, []string{strings.Repeat("\uFDFA", 20000)}},
+		{"ascii", Settings{}, tokBenchASCII},
+		{"mixed", Settings{}, tokBenchMixed},
+		{"unicode", Settings{}, tokBenchUnicode},
+		{"long unicode, limit reached", Settings{}, []string{long}},
+		{"long unicode, no limit", Settings{MaxTokens: MaxTokensLimit}, []string{long}},
+		{"U+FDFA", Settings{MaxTokens: 60}, []string{strings.Repeat("\uFDFA", 20000)}},
 	} {
-		tk := NewTokenizer(c.set)
+		tk := New(c.set)
 		var ts Tokens
 		texts := make([][]byte, len(c.lines))
 		for i, l := range c.lines {
@@ -671,7 +671,7 @@ func TestTokenizeAllocs(t *testing.T) {
 // TestTokenizeConcurrent: one Tokenizer shared by goroutines, each with
 // its own Tokens, gives the sequential results (run with -race).
 func TestTokenizeConcurrent(t *testing.T) {
-	tk := NewTokenizer(TokenizerSettings{})
+	tk := New(Settings{})
 	lines := append(append([]string(nil), tokBenchASCII...), tokBenchUnicode...)
 	want := make([][]string, len(lines))
 	for i, l := range lines {
@@ -700,7 +700,7 @@ func TestTokenizeConcurrent(t *testing.T) {
 }
 
 func ExampleTokenizer_Tokenize() {
-	tk := NewTokenizer(TokenizerSettings{})
+	tk := New(Settings{})
 	var ts Tokens
 	tk.Tokenize(&ts, []byte("Is the 10:30 ferry to Osk late? Ask @harbour_desk or see https://ferry.example/live 🙏"))
 	for i := 0; i < ts.Len(); i++ {
@@ -785,7 +785,7 @@ func TestTokenizeIncrementalDifferential(t *testing.T) {
 		if i%16 == 0 {
 			chunks = []int{1, 2, 3, 5, 8, 13, 64, 0}
 		}
-		full := tokRefTokenize(TokenizerSettings{KeepPunct: base.KeepPunct, NoPlaceholders: base.NoPlaceholders, MaxTokens: MaxTokensLimit}, text)
+		full := tokRefTokenize(Settings{KeepPunct: base.KeepPunct, NoPlaceholders: base.NoPlaceholders, MaxTokens: MaxTokensLimit}, text)
 		for _, limit := range limits {
 			set := base
 			set.MaxTokens = limit
@@ -821,8 +821,8 @@ func TestTokenizeBoundedMemory(t *testing.T) {
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			text := []byte(strings.Repeat(c.unit, size/len(c.unit)))
-			set := TokenizerSettings{MaxTokens: 60}
-			tk := NewTokenizer(set)
+			set := Settings{MaxTokens: 60}
+			tk := New(set)
 			var ts Tokens
 			var before, after runtime.MemStats
 			runtime.ReadMemStats(&before)
