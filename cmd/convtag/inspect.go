@@ -17,7 +17,7 @@ const builtinCaution = `caution:        a demonstration (positive/negative senti
                 restaurant reviews); not fit for moderation or any decision about a person`
 
 func newInspectCmd(a *app) *cobra.Command {
-	var asJSON, verify bool
+	var asJSON, verify, all bool
 	var sf sampleFlags
 	c := &cobra.Command{
 		Use:   "inspect [MODEL]",
@@ -85,7 +85,7 @@ windows.`,
 			if path == "" {
 				fmt.Fprintln(a.stdout, builtinCaution)
 			}
-			if err := writeInfoText(a.stdout, &in); err != nil {
+			if err := writeInfoText(a.stdout, &in, all); err != nil {
 				return err
 			}
 			if verify {
@@ -98,6 +98,7 @@ windows.`,
 		},
 	}
 	c.Flags().BoolVar(&asJSON, "json", false, "print the description as JSON")
+	c.Flags().BoolVar(&all, "all", false, "also print every metadata field and the training summary's raw fields")
 	c.Flags().BoolVar(&verify, "verify", false, "check the checksum, weights, index, a forward pass and the baseline; exit 2 on a problem")
 	c.Flags().IntVar(&sf.ngrams, "ngrams", 0, "show the N windows of --sample that most raise each label's score, and each filter's N strongest")
 	c.Flags().StringArrayVar(&sf.samples, "sample", nil, "texts for --ngrams (plain lines, or JSON Lines with --text-key); repeatable")

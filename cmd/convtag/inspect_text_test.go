@@ -21,7 +21,7 @@ func TestWriteInfoText(t *testing.T) {
 		Training: json.RawMessage(`{"best":{"accuracy":0.875}}`),
 	}
 	var b strings.Builder
-	if err := writeInfoText(&b, in); err != nil {
+	if err := writeInfoText(&b, in, true); err != nil {
 		t.Fatal(err)
 	}
 	text := b.String()
@@ -36,7 +36,7 @@ func TestWriteInfoText(t *testing.T) {
 	}
 	in.Tokenizer = token.Settings{}
 	b.Reset()
-	if err := writeInfoText(&b, in); err != nil || !strings.Contains(b.String(), "max_tokens=400") {
+	if err := writeInfoText(&b, in, true); err != nil || !strings.Contains(b.String(), "max_tokens=400") {
 		t.Errorf("zero settings: want the default cap shown, got %v:\n%s", err, b.String())
 	}
 }

@@ -43,6 +43,7 @@ const (
 // trainFlags are the train command's settings.
 type trainFlags struct {
 	output, dev, vectors, classWeights, optimizer string
+	description, intendedUse, notFor              string
 	labelledFlags
 	devFraction, lr                                                float64
 	dim, filters, epochs, patience, batch, jobs, minCount, buckets int
@@ -102,7 +103,8 @@ finish, and the run ends as usual.
 ` + exitHelp,
 		Example: `  convtag train -o ferry.safetensors testdata/demo/train.jsonl --dev testdata/demo/dev.jsonl
   convtag train -o m.safetensors --format tsv --text-column message --label-column queue --epochs 10 tickets.tsv.gz
-  convtag train -o m.safetensors --text-key msg.subject --text-key msg.body --label-key tags chat.jsonl`,
+  convtag train -o m.safetensors --text-key msg.subject --text-key msg.body --label-key tags chat.jsonl
+  convtag train -o ferry.safetensors --intended-use 'routing help-chat lines to a desk' --not-for 'any decision about the writer' train.jsonl`,
 		Args: cobra.ArbitraryArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
 			f.dimSet = cmd.Flags().Changed("vector-size")
@@ -135,6 +137,9 @@ finish, and the run ends as usual.
 	fl.BoolVar(&f.noFold, "no-fold", false, "do not write the folded table (smaller file, slower tagging)")
 	fl.BoolVar(&f.foldHalf, "fold-half", false, "store the folded table in half precision (half the size)")
 	fl.BoolVarP(&f.quiet, "quiet", "q", false, "no progress on stderr")
+	fl.StringVar(&f.description, "description", "", "what the model tags and from what data, in a sentence or two (shown first by inspect)")
+	fl.StringVar(&f.intendedUse, "intended-use", "", "what the model's tags are meant for (shown first by inspect)")
+	fl.StringVar(&f.notFor, "not-for", "", "uses the model is not fit for (shown first by inspect)")
 	return c
 }
 
@@ -165,6 +170,15 @@ func (f *trainFlags) check(args []string) error {
 // trainSummary is the training record stored under the model's "training"
 // metadata key. It holds no times, so the file stays reproducible.
 type trainSummary struct {
+	// The model card's own words, from --description, --intended-use and
+	// --not-for.
+	Description string `json:"description,omitempty"`
+	IntendedUse string `json:"intended_use,omitempty"`
+	NotFor      string `json:"not_for,omitempty"`
+	// VectorsFile is the base name of the --vectors file, if any.
+	VectorsFile string `json:"vectors_file,omitempty"`
+	// Scorer is what tag scores records with.
+	Scorer     string                    `json:"scorer,omitempty"`
 	DataSHA256 string                    `json:"data_sha256"`
 	Files      []string                  `json:"files"`
 	DevFiles   []string                  `json:"dev_files,omitempty"`
@@ -191,6 +205,9 @@ type curvePoint struct {
 type scores struct {
 	DevAccuracy float64 `json:"dev_accuracy"`
 	DevMacroF1  float64 `json:"dev_macro_f1"`
+	// DevPerLabel is precision, recall, F1 and support per label on the
+	// dev records (the network's; empty without dev records).
+	DevPerLabel []metrics.LabelStats `json:"dev_per_label,omitempty"`
 }
 
 type baselineScores struct {
@@ -429,7 +446,25 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 	// Said even with -q: it is what the file holds, not progress.
 	fmt.Fprintf(a.stderr, "convtag: baseline: naive Bayes, %s stored\n", humanBytes(len(m.Baseline)))
 
+	netScores := scores{DevAccuracy: res.DevAcc, DevMacroF1: res.DevMacroF1}
+	if len(dev) > 0 {
+		p := m.NewPredictor()
+		npred := make([]int, len(dev))
+		for i, t := range dev {
+			npred[i], _ = metrics.Predict(p.Predict([]byte(t.text)))
+		}
+		netScores.DevPerLabel = metrics.PerLabel(metrics.Confusion(gold, npred, len(labels)), labels)
+	}
+	vecName := ""
+	if f.vectors != "" {
+		vecName = filepath.Base(f.vectors)
+	}
+	if f.description == "" && f.intendedUse == "" && f.notFor == "" {
+		fmt.Fprintln(a.stderr, "convtag: reminder: say what this model is for and not for (--description, --intended-use, --not-for); inspect shows them first")
+	}
 	sum := trainSummary{
+		Description: f.description, IntendedUse: f.intendedUse, NotFor: f.notFor,
+		VectorsFile: vecName, Scorer: "network",
 		DataSHA256: dataHash(train, dev),
 		Files:      baseNames(args), DevFiles: baseNames(devFiles),
 		Records:    map[string]int{"train": len(train), "dev": len(dev), "skipped": set.Skipped, "multi_label": set.Multi},
@@ -440,7 +475,7 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 			"max_words": f.maxWords, "class_weights": f.classWeights, "freeze_vectors": f.freeze,
 			"dropout": model.DefaultDropout, "max_norm": model.DefaultMaxNorm, "dev_fraction": f.devFraction},
 		EpochsRun: res.EpochsRun, BestEpoch: res.BestEpoch,
-		Network:  scores{res.DevAcc, res.DevMacroF1},
+		Network:  netScores,
 		Baseline: bs,
 	}
 	for _, e := range res.Curve {
