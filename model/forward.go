@@ -22,6 +22,7 @@ type Predictor struct {
 	tok    *token.Tokenizer
 	toks   token.Tokens
 	rows   []int32
+	known  int // tokens of the last Predict that are vocabulary words
 	direct bool
 	last   []int32 // the last folded text, for Winners
 	winOK  bool    // win is up to date
@@ -77,8 +78,14 @@ func (p *Predictor) SetDirect(direct bool) { p.direct = direct }
 func (p *Predictor) Predict(text []byte) []float32 {
 	p.tok.Tokenize(&p.toks, text)
 	p.rows = p.rows[:0]
+	p.known = 0
+	words := int32(p.m.Vocab.Len())
 	for i := range p.toks.Len() {
-		p.rows = append(p.rows, p.m.Vocab.Row(p.toks.At(i)))
+		r := p.m.Vocab.Row(p.toks.At(i))
+		if r <= words {
+			p.known++ // rows 1..V are the vocabulary's words; higher are shared
+		}
+		p.rows = append(p.rows, r)
 	}
 	return p.PredictRows(p.rows)
 }
@@ -119,6 +126,12 @@ var padOnly = [1]int32{0}
 // probabilities are those of a padding-only input. PredictRows does not
 // change it.
 func (p *Predictor) TokenCount() int { return p.toks.Len() }
+
+// KnownCount is how many of the last Predict call's tokens are words of
+// the vocabulary (the rest share the rows for unseen words). Their share,
+// KnownCount()/TokenCount(), says how much of a text the model has seen
+// the like of.
+func (p *Predictor) KnownCount() int { return p.known }
 
 // Logits returns the last prediction's logits, one per label.
 func (p *Predictor) Logits() []float32 { return p.logits }

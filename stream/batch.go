@@ -10,6 +10,7 @@ import (
 type counts struct {
 	records, written, dropped, malformed, notString, tooLong, noText,
 	blank, crlf, invalidUTF8, passed, rejected, text, noWords int64
+	words, known int64 // tokens of tagged texts, and those the model knows
 }
 
 func (c *counts) add(o *counts) {
@@ -27,6 +28,8 @@ func (c *counts) add(o *counts) {
 	c.rejected += o.rejected
 	c.text += o.text
 	c.noWords += o.noWords
+	c.words += o.words
+	c.known += o.known
 }
 
 // lineErr is a problem with the block's line number line (from 0).

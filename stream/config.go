@@ -12,18 +12,18 @@ import (
 
 // config is Options with defaults applied and keys pre-encoded.
 type config struct {
-	o                          Options
-	textKeys                   []string // Options.TextKeys or the default
-	sep                        byte     // CSV or TSV separator; 0 for lines
-	tagKey, confKey            field    // names and encoded keys; values unused
-	scoresKey, topKey, whyKey  field
-	unsure                     string
-	jobs, blockSize, maxLine   int
-	pause, maxWait             time.Duration
-	minConf                    float64
-	sw                         *Switch
-	keep, drop                 map[string]bool
-	topTagKey, topConfKeyBytes []byte // `{"tag":` and `,"confidence":` for --top entries
+	o                                   Options
+	textKeys                            []string // Options.TextKeys or the default
+	sep                                 byte     // CSV or TSV separator; 0 for lines
+	tagKey, confKey                     field    // names and encoded keys; values unused
+	scoresKey, topKey, whyKey, knownKey field
+	unsure                              string
+	jobs, blockSize, maxLine            int
+	pause, maxWait                      time.Duration
+	minConf                             float64
+	sw                                  *Switch
+	keep, drop                          map[string]bool
+	topTagKey, topConfKeyBytes          []byte // `{"tag":` and `,"confidence":` for --top entries
 
 	keyDone atomic.Bool // the wrong-key check is decided: workers stop noting keys
 }
@@ -38,8 +38,8 @@ func newConfig(o Options) (*config, error) {
 	}
 	c.textKeys = textKeysOrDefault(o.TextKeys)
 	c.sep = csvSep(o.Format)
-	if c.sep != 0 && (o.Scores || o.Top > 0 || o.Why) {
-		return nil, errors.New("stream: scores, top and why are for JSON output, not CSV or TSV")
+	if c.sep != 0 && (o.Scores || o.Top > 0 || o.Why || o.KnownKey != "") {
+		return nil, errors.New("stream: scores, top, why and the known-word share are for JSON output, not CSV or TSV")
 	}
 	mk := func(name, def string) field {
 		if name == "" {
@@ -52,6 +52,7 @@ func newConfig(o Options) (*config, error) {
 	c.scoresKey = mk(o.ScoresKey, "scores")
 	c.topKey = mk(o.TopKey, "top")
 	c.whyKey = mk(o.WhyKey, "why")
+	c.knownKey = mk(o.KnownKey, "known")
 	used := []string{c.tagKey.name, c.confKey.name}
 	if o.Scores {
 		used = append(used, c.scoresKey.name)
@@ -61,6 +62,9 @@ func newConfig(o Options) (*config, error) {
 	}
 	if o.Why {
 		used = append(used, c.whyKey.name)
+	}
+	if o.KnownKey != "" {
+		used = append(used, c.knownKey.name)
 	}
 	for i, k := range used {
 		if slices.Contains(used[:i], k) {

@@ -154,6 +154,10 @@ type Options struct {
 	// JSON output only, like Scores.
 	Why    bool
 	WhyKey string
+	// KnownKey, when set, adds under that key each tagged record's share
+	// of words the classifier knows (KnownCounter), rounded to 4
+	// decimals, or null when the Scorer cannot tell; JSON output only.
+	KnownKey string
 	// MinConfidence: a record whose best probability is below it gets
 	// UnsureTag ("unsure") as its tag; its confidence stays the best
 	// probability. A text without a word (only punctuation, or empty, as
@@ -274,6 +278,8 @@ type Stats struct {
 	Passed      int64            // records written unchanged, without a tag
 	Text        int64            // lines read as text (not JSON), tagged
 	NoWords     int64            // tagged texts without a word: UnsureTag, confidence 0
+	Words       int64            // words of the tagged texts (when the Scorer is a KnownCounter)
+	Known       int64            // of those, words the classifier knows from training
 	Bytes       int64            // decoded input bytes
 	Elapsed     time.Duration
 }

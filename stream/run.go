@@ -276,6 +276,7 @@ func Run(ctx context.Context, opts Options, inputs []string, stdin io.Reader, st
 	stats.Rejected, stats.Malformed, stats.NotString, stats.TooLong = tot.rejected, tot.malformed, tot.notString, tot.tooLong
 	stats.NoText, stats.Blank, stats.CRLF, stats.InvalidUTF8, stats.Passed = tot.noText, tot.blank, tot.crlf, tot.invalidUTF8, tot.passed
 	stats.Text, stats.NoWords = tot.text, tot.noWords
+	stats.Words, stats.Known = tot.words, tot.known
 	stats.Elapsed = time.Since(start)
 	switch {
 	case werr != nil:

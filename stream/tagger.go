@@ -34,3 +34,12 @@ type WordCounter interface {
 	Scorer
 	Words() int
 }
+
+// KnownCounter is a WordCounter that can also say how many of the last
+// text's words the classifier knows from training. The pipeline sums both
+// into Stats (Known, Words) and, with Options.KnownKey, adds each record's
+// share of known words.
+type KnownCounter interface {
+	WordCounter
+	Known() int
+}

@@ -17,10 +17,12 @@ type worker struct {
 	key    []byte // the key watch's scratch
 	fields []field
 	order  []int
-	probs  []float32 // the last Score's result, cut to the labels
-	best   int       // index of the highest of probs
-	empty  bool      // the last text scored had no words
-	passOK bool      // untagged records are written
+	probs  []float32    // the last Score's result, cut to the labels
+	best   int          // index of the highest of probs
+	empty  bool         // the last text scored had no words
+	share  float32      // the last text's share of known words; -1 when unknown
+	kc     KnownCounter // sc, when it can count known words; else nil
+	passOK bool         // untagged records are written
 }
 
 func newWorker(c *config) *worker {
@@ -37,6 +39,9 @@ func newWorker(c *config) *worker {
 	if c.o.Why {
 		w.fields = append(w.fields, c.whyKey)
 	}
+	if c.o.KnownKey != "" {
+		w.fields = append(w.fields, c.knownKey)
+	}
 	return w
 }
 
@@ -46,6 +51,7 @@ func (w *worker) process(b *block) {
 		w.ts = b.tagger
 		w.sc = w.ts.t.NewScorer()
 		w.wc, _ = w.sc.(WordCounter)
+		w.kc, _ = w.sc.(KnownCounter)
 	}
 	if n := len(w.ts.labels); cap(b.tags) < n {
 		b.tags = make([]int64, n)
@@ -288,6 +294,15 @@ func (w *worker) score(b *block, text []byte) (int, bool) {
 	probs := w.sc.Score(text)
 	n := min(len(probs), len(w.ts.labels)-1)
 	w.empty = w.wc != nil && w.wc.Words() == 0
+	w.share = -1
+	if w.kc != nil {
+		n, k := w.kc.Words(), w.kc.Known()
+		b.n.words += int64(n)
+		b.n.known += int64(k)
+		if n > 0 {
+			w.share = float32(k) / float32(n)
+		}
+	}
 	if w.empty {
 		// No words: the model's answer for an empty input says nothing
 		// about this record.
@@ -368,6 +383,14 @@ func (w *worker) setFields(tag int) {
 			w.fields[i].val = ex.AppendWhy(w.fields[i].val[:0])
 		} else {
 			w.fields[i].val = append(w.fields[i].val[:0], "[]"...)
+		}
+		i++
+	}
+	if w.cfg.o.KnownKey != "" {
+		if w.share < 0 {
+			w.fields[i].val = append(w.fields[i].val[:0], "null"...)
+		} else {
+			w.fields[i].val = appendConf(w.fields[i].val[:0], w.share)
 		}
 	}
 }

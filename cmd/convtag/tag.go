@@ -2,6 +2,7 @@ package main
 
 import (
 	"context"
+	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
@@ -55,6 +56,10 @@ func (s predictorScorer) Score(text []byte) []float32 { return s.p.Predict(text)
 // Words tells the pipeline that a text without a token gets the unsure tag
 // (stream.WordCounter).
 func (s predictorScorer) Words() int { return s.p.TokenCount() }
+
+// Known is how many of the last text's tokens the model has a row of its
+// own for (stream.KnownCounter).
+func (s predictorScorer) Known() int { return s.p.KnownCount() }
 
 // maxShownProblems caps the record problems printed on stderr; --stats
 // has the counts of all of them.
@@ -160,6 +165,7 @@ a same-size overwrite would switch the model in the middle of a block.
 			if err != nil {
 				return err
 			}
+			trainedShare := trainedKnownShare(m)
 			if slices.Contains(m.Labels, o.UnsureTag) {
 				return usageErr("convtag tag --unsure-tag unsure", "--unsure-tag %q is one of the model's tags (%s): unsure records could not be told apart", o.UnsureTag, strings.Join(m.Labels, ", "))
 			}
@@ -246,7 +252,7 @@ a same-size overwrite would switch the model in the middle of a block.
 				}
 			}
 			if showStats {
-				writeStats(a.stderr, st, o.UnsureTag, o.MinConfidence)
+				writeStats(a.stderr, st, o.UnsureTag, o.MinConfidence, trainedShare)
 			}
 			var ie *stream.InputError
 			if errors.As(err, &ie) && inputProblems > 0 {
@@ -287,6 +293,7 @@ a same-size overwrite would switch the model in the middle of a block.
 	f.BoolVar(&o.Scores, "scores", false, `add every label's probability as an object under "scores" (JSON output)`)
 	f.IntVar(&o.Top, "top", 0, `add the N best labels, best first, as an array under "top" (JSON output)`)
 	f.IntVar(&why, "why", 0, `add the N word windows that weighed most for the tag, as an array under "why" (JSON output)`)
+	f.StringVar(&o.KnownKey, "known-key", "", "add each record's share of words the model knows from training under this key (JSON output)")
 	f.Float64Var(&o.MinConfidence, "min-confidence", 0, "below this probability the record gets the --unsure-tag")
 	f.StringVar(&o.UnsureTag, "unsure-tag", "unsure", "tag for records below --min-confidence and texts without a word")
 	f.StringSliceVar(&keep, "keep", nil, "write only records with one of these tags (TAG[,TAG])")
@@ -362,7 +369,7 @@ func checkTagFlags(o *stream.Options, format, emit, compress, progress, output s
 		for _, c := range []struct {
 			flag string
 			on   bool
-		}{{"--scores", o.Scores}, {"--top", o.Top > 0}, {"--why", why > 0}} {
+		}{{"--scores", o.Scores}, {"--top", o.Top > 0}, {"--why", why > 0}, {"--known-key", o.KnownKey != ""}} {
 			if c.on {
 				return usageErr("convtag tag --format text --emit jsonl "+c.flag+" ...", "%s: text lines written as TSV have no place for it", c.flag)
 			}
@@ -379,6 +386,9 @@ func checkTagFlags(o *stream.Options, format, emit, compress, progress, output s
 	}
 	if why > 0 {
 		keys = append(keys, key{"--why", "why"})
+	}
+	if o.KnownKey != "" {
+		keys = append(keys, key{"--known-key", o.KnownKey})
 	}
 	for i, k := range keys {
 		if k.name == "" {
@@ -544,10 +554,24 @@ func splitTags(list []string) []string {
 	return out
 }
 
+// knownShareGap is how far (in share of words) a stream's known words may
+// fall below the dev records' before --stats warns; a rule of thumb.
+const knownShareGap = 0.25
+
+// trainedKnownShare is the dev records' share of known words stored in m's
+// training summary, or nil.
+func trainedKnownShare(m *model.Model) *float64 {
+	var s trainSummary
+	if json.Unmarshal([]byte(m.Meta[model.MetaTraining]), &s) != nil {
+		return nil
+	}
+	return s.DevKnownShare
+}
+
 // writeStats prints the closing --stats summary. The records for a person
 // to look at are those tagged unsure: below --min-confidence, or with no
 // word the model knows of at all.
-func writeStats(w io.Writer, st stream.Stats, unsure string, minConf float64) {
+func writeStats(w io.Writer, st stream.Stats, unsure string, minConf float64, trainedShare *float64) {
 	p := func(name string, v any) { fmt.Fprintf(w, "convtag: %-16s %v\n", name, v) }
 	p("records in", st.Records)
 	p("records out", st.Written)
@@ -575,6 +599,17 @@ func writeStats(w io.Writer, st stream.Stats, unsure string, minConf float64) {
 	p("  blank", st.Blank)
 	p("text lines", st.Text)
 	p("no words", st.NoWords)
+	if st.Words > 0 {
+		share := float64(st.Known) / float64(st.Words)
+		p("known words", fmt.Sprintf("%.1f%% of %d", 100*share, st.Words))
+		if trainedShare != nil {
+			p("  in dev records", fmt.Sprintf("%.1f%%", 100**trainedShare))
+			if share < *trainedShare-knownShareGap && st.Words >= 200 {
+				fmt.Fprintf(w, "convtag: warning: the model knows %.0f%% of these records' words, against %.0f%% of its dev records': this text is unlike what it was trained on (another language or domain?), so its tags are less to be trusted\n",
+					100*share, 100**trainedShare)
+			}
+		}
+	}
 	p("CRLF lines", st.CRLF)
 	p("invalid UTF-8", st.InvalidUTF8)
 	p("seconds", fmt.Sprintf("%.3f", st.Elapsed.Seconds()))

@@ -177,6 +177,9 @@ type trainSummary struct {
 	NotFor      string `json:"not_for,omitempty"`
 	// VectorsFile is the base name of the --vectors file, if any.
 	VectorsFile string `json:"vectors_file,omitempty"`
+	// DevKnownShare is the share of the dev records' tokens that are
+	// vocabulary words: what tag --stats compares a stream's share with.
+	DevKnownShare *float64 `json:"dev_known_share,omitempty"`
 	// Scorer is what tag scores records with.
 	Scorer     string                    `json:"scorer,omitempty"`
 	DataSHA256 string                    `json:"data_sha256"`
@@ -447,11 +450,19 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 	fmt.Fprintf(a.stderr, "convtag: baseline: naive Bayes, %s stored\n", humanBytes(len(m.Baseline)))
 
 	netScores := scores{DevAccuracy: res.DevAcc, DevMacroF1: res.DevMacroF1}
+	var devKnown *float64
 	if len(dev) > 0 {
 		p := m.NewPredictor()
 		npred := make([]int, len(dev))
+		toks, known := 0, 0
 		for i, t := range dev {
 			npred[i], _ = metrics.Predict(p.Predict([]byte(t.text)))
+			toks += p.TokenCount()
+			known += p.KnownCount()
+		}
+		if toks > 0 {
+			share := round6(float64(known) / float64(toks))
+			devKnown = &share
 		}
 		netScores.DevPerLabel = metrics.PerLabel(metrics.Confusion(gold, npred, len(labels)), labels)
 	}
@@ -464,7 +475,7 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 	}
 	sum := trainSummary{
 		Description: f.description, IntendedUse: f.intendedUse, NotFor: f.notFor,
-		VectorsFile: vecName, Scorer: "network",
+		VectorsFile: vecName, Scorer: "network", DevKnownShare: devKnown,
 		DataSHA256: dataHash(train, dev),
 		Files:      baseNames(args), DevFiles: baseNames(devFiles),
 		Records:    map[string]int{"train": len(train), "dev": len(dev), "skipped": set.Skipped, "multi_label": set.Multi},

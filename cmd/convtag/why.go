@@ -37,6 +37,10 @@ func (s *whyScorer) Score(text []byte) []float32 {
 // Words is the last text's token count (stream.WordCounter).
 func (s *whyScorer) Words() int { return s.p.TokenCount() }
 
+// Known is the last text's count of words the model knows
+// (stream.KnownCounter).
+func (s *whyScorer) Known() int { return s.p.KnownCount() }
+
 // AppendWhy appends the last text's evidence as a JSON array, best first:
 // [{"ngram":"…","position":P,"width":W,"share":S}, …], position counting
 // tokens from 0 and share the window's signed part of the tagged label's
