@@ -92,6 +92,11 @@ func newConfig(o Options) (*config, error) {
 		return nil, fmt.Errorf("stream: minimum confidence %v out of range 0..1", o.MinConfidence)
 	}
 	c.minConf = o.MinConfidence
+	for l, v := range o.MinConfidenceFor {
+		if !(v >= 0 && v <= 2) { // NaN fails both
+			return nil, fmt.Errorf("stream: minimum confidence %v for %q out of range", v, l)
+		}
+	}
 	if o.Top < 0 {
 		return nil, fmt.Errorf("stream: top %d is negative", o.Top)
 	}
@@ -120,9 +125,10 @@ func cmp0(v, def int) int {
 // once per Tagger, shared read-only by the blocks it tags.
 type taggerState struct {
 	t         Tagger
-	labels    []string // the Tagger's labels, then the unsure tag
-	labelJSON [][]byte // each of labels as a JSON string
-	selected  []bool   // each of labels: written (Keep/Drop)
+	labels    []string  // the Tagger's labels, then the unsure tag
+	labelJSON [][]byte  // each of labels as a JSON string
+	selected  []bool    // each of labels: written (Keep/Drop)
+	minConf   []float64 // each of the Tagger's labels: its minimum confidence
 }
 
 func newTaggerState(t Tagger, c *config) *taggerState {
@@ -131,6 +137,13 @@ func newTaggerState(t Tagger, c *config) *taggerState {
 	for _, l := range ts.labels {
 		ts.labelJSON = append(ts.labelJSON, appendString(nil, []byte(l)))
 		ts.selected = append(ts.selected, c.selects(l))
+	}
+	for _, l := range ts.labels[:len(ts.labels)-1] {
+		v, ok := c.o.MinConfidenceFor[l]
+		if !ok {
+			v = c.minConf
+		}
+		ts.minConf = append(ts.minConf, v)
 	}
 	return ts
 }

@@ -164,7 +164,13 @@ type Options struct {
 	// the Scorer counts words when it is a WordCounter) gets UnsureTag with
 	// confidence 0, an empty Scores object and empty Top and Why arrays.
 	MinConfidence float64
-	UnsureTag     string
+	// MinConfidenceFor overrides MinConfidence for the labels it names:
+	// a record whose best label is L needs MinConfidenceFor[L]. A value
+	// above 1 tags every record of that label unsure (for a label whose
+	// target precision was never reached). Names the Tagger lacks are
+	// ignored (a reloaded model may have other labels).
+	MinConfidenceFor map[string]float64
+	UnsureTag        string
 	// Keep, when not empty, writes only records whose tag is in it; Drop
 	// leaves out records whose tag is in it. A record passed through
 	// untagged has no tag: Keep leaves it out, Drop keeps it.

@@ -318,7 +318,7 @@ func (w *worker) score(b *block, text []byte) (int, bool) {
 	}
 	w.best = best
 	tag := best
-	if n == 0 || float64(probs[best]) < w.cfg.minConf {
+	if n == 0 || float64(probs[best]) < w.ts.minConf[best] {
 		tag = len(w.ts.labels) - 1
 	}
 	b.tags[tag]++

@@ -832,6 +832,20 @@ func writeEvalText(w io.Writer, o *evalOutput, modelFlag string) error {
 			t.add(l.Label, thr, frac(l.Precision), interval(l.PrecisionCI), itoa(l.Kept)+few(l.Few), frac(l.Recall), pct(l.Coverage))
 		}
 		t.write(&b)
+		var per []string
+		for _, l := range tg.PerLabel {
+			if l.Reached {
+				per = append(per, l.Label+"="+strconv.FormatFloat(l.Threshold, 'f', -1, 64))
+			} else {
+				per = append(per, l.Label+"=1")
+			}
+		}
+		m := ""
+		if modelFlag != "" {
+			m = " -m " + modelFlag
+		}
+		fmt.Fprintf(&b, "  per label: convtag tag%s --min-confidence %s\n", m, strings.Join(per, ","))
+		fmt.Fprintf(&b, "  (or save this report with --json and give it to tag --thresholds FILE; a label not reached is then always tagged unsure)\n")
 	}
 	if len(o.Plots) > 0 {
 		fmt.Fprintf(&b, "\nplots: %s\n", strings.Join(o.Plots, " "))

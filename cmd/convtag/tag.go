@@ -68,6 +68,8 @@ const maxShownProblems = 20
 func newTagCmd(a *app) *cobra.Command {
 	var (
 		modelPath, format, emit, output, compress, rejects, progress string
+		minConf, thresholdsFile                                      string
+		rule                                                         confidenceRule
 		textKeys, textColumns, keep, drop                            []string
 		o                                                            stream.Options
 		strict, showStats                                            bool
@@ -147,6 +149,10 @@ a same-size overwrite would switch the model in the middle of a block.
   convtag tag --format text --emit jsonl notes.txt
   tail -F service.log | convtag tag -k msg --min-confidence 0.6 --append -o tagged.jsonl.gz`,
 		RunE: func(cmd *cobra.Command, args []string) error {
+			var err error
+			if rule, err = parseMinConfidence(minConf); err != nil {
+				return err
+			}
 			if err := checkTagFlags(&o, format, emit, compress, progress, output, why, textKeys); err != nil {
 				return err
 			}
@@ -166,6 +172,9 @@ a same-size overwrite would switch the model in the middle of a block.
 				return err
 			}
 			trainedShare := trainedKnownShare(m)
+			if err := applyConfidence(&o, rule, thresholdsFile, m.Labels); err != nil {
+				return err
+			}
 			if slices.Contains(m.Labels, o.UnsureTag) {
 				return usageErr("convtag tag --unsure-tag unsure", "--unsure-tag %q is one of the model's tags (%s): unsure records could not be told apart", o.UnsureTag, strings.Join(m.Labels, ", "))
 			}
@@ -252,7 +261,7 @@ a same-size overwrite would switch the model in the middle of a block.
 				}
 			}
 			if showStats {
-				writeStats(a.stderr, st, o.UnsureTag, o.MinConfidence, trainedShare)
+				writeStats(a.stderr, st, o, trainedShare)
 			}
 			var ie *stream.InputError
 			if errors.As(err, &ie) && inputProblems > 0 {
@@ -294,7 +303,8 @@ a same-size overwrite would switch the model in the middle of a block.
 	f.IntVar(&o.Top, "top", 0, `add the N best labels, best first, as an array under "top" (JSON output)`)
 	f.IntVar(&why, "why", 0, `add the N word windows that weighed most for the tag, as an array under "why" (JSON output)`)
 	f.StringVar(&o.KnownKey, "known-key", "", "add each record's share of words the model knows from training under this key (JSON output)")
-	f.Float64Var(&o.MinConfidence, "min-confidence", 0, "below this probability the record gets the --unsure-tag")
+	f.StringVar(&minConf, "min-confidence", "", "below this probability the record gets the --unsure-tag: P, or per label LABEL=P[,LABEL=P...] with an optional bare P for the rest")
+	f.StringVar(&thresholdsFile, "thresholds", "", "per-label minimum confidences from FILE, as written by eval --json --target-precision P (--min-confidence overrides them)")
 	f.StringVar(&o.UnsureTag, "unsure-tag", "unsure", "tag for records below --min-confidence and texts without a word")
 	f.StringSliceVar(&keep, "keep", nil, "write only records with one of these tags (TAG[,TAG])")
 	f.StringSliceVar(&drop, "drop", nil, "leave out records with one of these tags (TAG[,TAG])")
@@ -332,9 +342,6 @@ func checkTagFlags(o *stream.Options, format, emit, compress, progress, output s
 	}
 	if o.Compress, err = stream.ParseCompress(compress); err != nil {
 		return usageErr("convtag tag --compress auto|none|gzip|zstd", "--compress: %v", err)
-	}
-	if !(o.MinConfidence >= 0 && o.MinConfidence <= 1) { // NaN fails both
-		return usageErr("convtag tag --min-confidence 0.7", "--min-confidence %v: want a probability from 0 to 1", o.MinConfidence)
 	}
 	for _, c := range []struct {
 		flag     string
@@ -571,7 +578,7 @@ func trainedKnownShare(m *model.Model) *float64 {
 // writeStats prints the closing --stats summary. The records for a person
 // to look at are those tagged unsure: below --min-confidence, or with no
 // word the model knows of at all.
-func writeStats(w io.Writer, st stream.Stats, unsure string, minConf float64, trainedShare *float64) {
+func writeStats(w io.Writer, st stream.Stats, o stream.Options, trainedShare *float64) {
 	p := func(name string, v any) { fmt.Fprintf(w, "convtag: %-16s %v\n", name, v) }
 	p("records in", st.Records)
 	p("records out", st.Written)
@@ -583,9 +590,9 @@ func writeStats(w io.Writer, st stream.Stats, unsure string, minConf float64, tr
 	for _, t := range tags {
 		p("  tag "+t, st.Tags[t])
 	}
-	review := st.Tags[unsure]
-	if minConf > 0 {
-		p(fmt.Sprintf("for review (below %g)", minConf), review-st.NoWords)
+	review := st.Tags[o.UnsureTag]
+	if o.MinConfidence > 0 || len(o.MinConfidenceFor) > 0 {
+		p(fmt.Sprintf("for review (below %s)", describeThresholds(o)), review-st.NoWords)
 	} else {
 		p("for review", "0 (no --min-confidence)")
 	}

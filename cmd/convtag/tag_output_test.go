@@ -355,7 +355,7 @@ func TestTagFlagErrors(t *testing.T) {
 		{[]string{"--format", "text", "--why", "1"}, exitUsage, "--why"},
 		{[]string{"--format", "text", "--emit", "jsonl", "--scores", "--top", "1"}, exitOK, ""},
 		{[]string{"--scores", "--top", "1"}, exitOK, ""}, // auto: JSON records carry them
-		{[]string{"--min-confidence", "NaN"}, exitUsage, "--min-confidence NaN"},
+		{[]string{"--min-confidence", "NaN"}, exitUsage, `--min-confidence "NaN"`},
 		{[]string{"--min-confidence", "-0.1"}, exitUsage, "--min-confidence"},
 		{[]string{"-k", ""}, exitUsage, `-k ""`},
 		{[]string{"-k", "a..b"}, exitUsage, `-k "a..b"`},
