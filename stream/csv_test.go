@@ -75,7 +75,7 @@ func TestCSVGolden(t *testing.T) {
 					}
 					want, _ := os.ReadFile(filepath.Join("testdata", "csv_"+tc.name+".golden"))
 					if b.String() != string(want) {
-						t.Errorf("-j %d --batch %d differs from the golden file:\n%s", jobs, bs, b.String())
+						t.Errorf("-j %d, block size %d differs from the golden file:\n%s", jobs, bs, b.String())
 					}
 				}
 			}
@@ -387,7 +387,7 @@ func TestCSVBlankBeforeHeader(t *testing.T) {
 	for _, bs := range []int{1, 2, 3} {
 		got, _, errs2 := runString(t, Options{Format: InputCSV, Jobs: 1, BlockSize: bs}, "\n\r\n"+csvInput)
 		if got != "\n\r\n"+want || len(errs2) != len(errs) {
-			t.Errorf("--batch %d: %q, errors %v", bs, got, errs2)
+			t.Errorf("block size %d: %q, errors %v", bs, got, errs2)
 		}
 	}
 }

@@ -313,7 +313,7 @@ a same-size overwrite would switch the model in the middle of a block.
 	f.BoolVar(&o.Append, "append", false, "with --output: add to FILE in place, instead of replacing it when the run ends (for a live stream, or a filter a log daemon restarts)")
 	f.StringVar(&compress, "compress", "auto", "output compression: auto (by --output suffix), none, gzip or zstd")
 	f.IntVarP(&o.Jobs, "jobs", "j", 0, "workers (default: all cores; at most 1024)")
-	f.IntVar(&o.BlockSize, "batch", 0, "bytes of input a worker takes at a time (default 1048576; at most 268435456)")
+	f.IntVar(&o.BlockSize, "block-size", 0, "bytes of input a worker takes at a time (default 1048576; at most 268435456)")
 	f.StringVar(&rejects, "rejects", "", "write records that cannot be tagged to FILE instead of the output")
 	f.BoolVar(&strict, "strict", false, "exit with status 3 at the end if any record was rejected")
 	f.StringVar(&progress, "progress", "auto", "progress bar on stderr (bytes read of the inputs' size, records, records/s): auto (when stderr is a terminal and the input size is known), on or off")
@@ -322,11 +322,11 @@ a same-size overwrite would switch the model in the middle of a block.
 }
 
 // Bounds on the worker flags: beyond them a run only costs memory. Each
-// worker keeps three blocks of --batch bytes in flight (stream's window),
+// worker keeps three blocks of --block-size bytes in flight (stream's window),
 // so their product is bounded too.
 const (
 	maxJobs     = 1024
-	maxBatch    = 256 << 20
+	maxBlock    = 256 << 20
 	maxInFlight = 4 << 30
 )
 
@@ -346,7 +346,7 @@ func checkTagFlags(o *stream.Options, format, emit, compress, progress, output s
 	for _, c := range []struct {
 		flag     string
 		v, limit int
-	}{{"--why", why, -1}, {"--top", o.Top, -1}, {"--jobs", o.Jobs, maxJobs}, {"--batch", o.BlockSize, maxBatch}} {
+	}{{"--why", why, -1}, {"--top", o.Top, -1}, {"--jobs", o.Jobs, maxJobs}, {"--block-size", o.BlockSize, maxBlock}} {
 		if c.v < 0 {
 			return usageErr("convtag tag --help", "%s %d: must not be negative", c.flag, c.v)
 		}
@@ -354,15 +354,15 @@ func checkTagFlags(o *stream.Options, format, emit, compress, progress, output s
 			return usageErr("convtag tag --help", "%s %d: at most %d", c.flag, c.v, c.limit)
 		}
 	}
-	jobs, batch := o.Jobs, o.BlockSize
+	jobs, block := o.Jobs, o.BlockSize
 	if jobs == 0 {
 		jobs = runtime.GOMAXPROCS(0)
 	}
-	if batch == 0 {
-		batch = stream.DefaultBlockSize
+	if block == 0 {
+		block = stream.DefaultBlockSize
 	}
-	if n := int64(max(2, 3*jobs)) * int64(batch); n > maxInFlight {
-		return usageErr("convtag tag --help", "--jobs %d with --batch %d keeps %d MiB in flight: at most %d MiB", jobs, batch, n>>20, maxInFlight>>20)
+	if n := int64(max(2, 3*jobs)) * int64(block); n > maxInFlight {
+		return usageErr("convtag tag --help", "--jobs %d with --block-size %d keeps %d MiB in flight: at most %d MiB", jobs, block, n>>20, maxInFlight>>20)
 	}
 	switch progress {
 	case "auto", "on", "off":

@@ -372,10 +372,10 @@ func TestTagFlagErrors(t *testing.T) {
 		{[]string{"--why", "-2"}, exitUsage, "--why -2"},
 		{[]string{"--top", "-1"}, exitUsage, "--top -1"},
 		{[]string{"-j", "-1"}, exitUsage, "--jobs -1"},
-		{[]string{"--batch", "-1"}, exitUsage, "--batch -1"},
+		{[]string{"--block-size", "-1"}, exitUsage, "--block-size -1"},
 		{[]string{"-j", "10000000"}, exitUsage, "--jobs 10000000"},
-		{[]string{"--batch", "9223372036854775807"}, exitUsage, "--batch 9223372036854775807"},
-		{[]string{"-j", "1024", "--batch", "268435456"}, exitUsage, "in flight"},
+		{[]string{"--block-size", "9223372036854775807"}, exitUsage, "--block-size 9223372036854775807"},
+		{[]string{"-j", "1024", "--block-size", "268435456"}, exitUsage, "in flight"},
 		{[]string{"-j", "1024"}, exitOK, ""},
 	} {
 		code, _, errs := runCmd(t, chat(5), append([]string{"tag", "-m", m}, c.args...)...)
