@@ -234,7 +234,7 @@ const chunkSize = 128 << 10
 // readInputs reads every input in turn into chunks and closes out at the
 // end. It returns early when quit is closed; a Read that blocks (an idle
 // pipe) delays that until the Read returns.
-func readInputs(names []string, stdin io.Reader, onRead func(int), pool chan []byte, out chan<- chunk, quit <-chan struct{}) {
+func readInputs(names []string, stdin io.Reader, onRead func(int), shard Shard, pool chan []byte, out chan<- chunk, quit <-chan struct{}) {
 	defer close(out)
 	send := func(c chunk) bool {
 		select {
@@ -245,7 +245,16 @@ func readInputs(names []string, stdin io.Reader, onRead func(int), pool chan []b
 		}
 	}
 	for i, name := range names {
-		in, err := openInput(name, stdin, onRead)
+		var in *input
+		var err error
+		if shard.N > 0 {
+			in, err = openShard(name, shard)
+			if err == nil && onRead != nil {
+				in.r = &countReader{r: in.r, onRead: onRead}
+			}
+		} else {
+			in, err = openInput(name, stdin, onRead)
+		}
 		if err != nil {
 			if !send(chunk{file: i, eof: true, err: err}) {
 				return

@@ -154,6 +154,9 @@ type Options struct {
 	// JSON output only, like Scores.
 	Why    bool
 	WhyKey string
+	// Shard, when N > 0, reads only that part of the one input file (an
+	// uncompressed regular file); see Shard.
+	Shard Shard
 	// KnownKey, when set, adds under that key each tagged record's share
 	// of words the classifier knows (KnownCounter), rounded to 4
 	// decimals, or null when the Scorer cannot tell; JSON output only.

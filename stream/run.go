@@ -36,6 +36,9 @@ func Run(ctx context.Context, opts Options, inputs []string, stdin io.Reader, st
 	if len(inputs) == 0 {
 		inputs = []string{"-"}
 	}
+	if opts.Shard.N > 0 && (len(inputs) != 1 || inputs[0] == "-") {
+		return stats, fmt.Errorf("%w: a part is taken of one named file, not of standard input or several files", ErrShardInput)
+	}
 	startTagger, startGen := opts.Tagger, uint64(0)
 	var startHeld *heldTagger
 	if sw := cfg.sw; sw != nil {
@@ -71,7 +74,7 @@ func Run(ctx context.Context, opts Options, inputs []string, stdin io.Reader, st
 		chunkPool <- make([]byte, 0, chunkSize)
 	}
 	chunks := make(chan chunk, cap(chunkPool))
-	go readInputs(inputs, stdin, func(n int) { bytesRead.Add(int64(n)) }, chunkPool, chunks, quit)
+	go readInputs(inputs, stdin, func(n int) { bytesRead.Add(int64(n)) }, opts.Shard, chunkPool, chunks, quit)
 
 	window := max(2, cfg.jobs*blocksPerWorker)
 	free := make(chan *block, window)
@@ -119,6 +122,9 @@ func Run(ctx context.Context, opts Options, inputs []string, stdin io.Reader, st
 			}
 		}
 		name := inputs[b.file]
+		if opts.Shard.N > 0 {
+			name += " (" + opts.Shard.String() + ")" // lines count from the part's start
+		}
 		if name == "-" {
 			name = "stdin"
 		}

@@ -68,7 +68,7 @@ const maxShownProblems = 20
 func newTagCmd(a *app) *cobra.Command {
 	var (
 		modelPath, format, emit, output, compress, rejects, progress string
-		minConf, thresholdsFile                                      string
+		minConf, thresholdsFile, shard                               string
 		rule                                                         confidenceRule
 		textKeys, textColumns, keep, drop                            []string
 		o                                                            stream.Options
@@ -152,6 +152,19 @@ a same-size overwrite would switch the model in the middle of a block.
 			var err error
 			if rule, err = parseMinConfidence(minConf); err != nil {
 				return err
+			}
+			if shard != "" {
+				if o.Shard, err = stream.ParseShard(shard); err != nil {
+					return usageErr("convtag tag --shard 3/8 -o part-3.jsonl chat.jsonl", "--shard: %v", err)
+				}
+				switch {
+				case len(args) != 1 || args[0] == "-":
+					return usageErr("convtag tag --shard 3/8 -o part-3.jsonl chat.jsonl", "--shard takes one input file (not standard input); for several files, give each task a file")
+				case format == "csv" || format == "tsv":
+					return usageErr("convtag tag --format "+format+" chat."+format, "--shard: a %s file's header is in its first part only; shard JSON Lines or text", format)
+				case o.Append:
+					return usageErr("convtag tag --shard 3/8 -o part-3.jsonl chat.jsonl", "--shard with --append: a part's output must be replaced whole when a task is run again")
+				}
 			}
 			if err := checkTagFlags(&o, format, emit, compress, progress, output, why, textKeys); err != nil {
 				return err
@@ -255,6 +268,10 @@ a same-size overwrite would switch the model in the middle of a block.
 			if bar != nil {
 				bar.end(st, err == nil)
 			}
+			if err == nil && o.Shard.N > 0 && output != "" && output != "-" {
+				// Written last: a part whose stats file exists is done.
+				err = writeShardStats(output+".stats.json", args[0], o.Shard, st)
+			}
 			if err == nil && rej != nil {
 				if err = rej.Commit(); err != nil {
 					err = fmt.Errorf("--rejects: %w", err)
@@ -304,6 +321,7 @@ a same-size overwrite would switch the model in the middle of a block.
 	f.IntVar(&why, "why", 0, `add the N word windows that weighed most for the tag, as an array under "why" (JSON output)`)
 	f.StringVar(&o.KnownKey, "known-key", "", "add each record's share of words the model knows from training under this key (JSON output)")
 	f.StringVar(&minConf, "min-confidence", "", "below this probability the record gets the --unsure-tag: P, or per label LABEL=P[,LABEL=P...] with an optional bare P for the rest")
+	f.StringVar(&shard, "shard", "", "tag only part K of N of one uncompressed FILE (K/N): the records starting in its K-th N-th by bytes; parts 1..N joined in order are the whole run's output")
 	f.StringVar(&thresholdsFile, "thresholds", "", "per-label minimum confidences from FILE, as written by eval --json --target-precision P (--min-confidence overrides them)")
 	f.StringVar(&o.UnsureTag, "unsure-tag", "unsure", "tag for records below --min-confidence and texts without a word")
 	f.StringSliceVar(&keep, "keep", nil, "write only records with one of these tags (TAG[,TAG])")
