@@ -1,7 +1,9 @@
 package main
 
 import (
+	"encoding/json"
 	"os"
+	"path/filepath"
 	"strconv"
 	"strings"
 	"testing"
@@ -104,5 +106,52 @@ func TestEvalCautions(t *testing.T) {
 		if len(c.want) == 0 && got != "" {
 			t.Errorf("%s: cautions %q, want none", c.name, got)
 		}
+	}
+}
+
+// TestEvalSaysWhenRecordsWereSeen: eval counts the records that were the
+// model's training or dev records (by a hash of their tokens, so case and
+// spacing do not hide one) and says the figures are then optimistic; on
+// records training never saw it says nothing.
+func TestEvalSaysWhenRecordsWereSeen(t *testing.T) {
+	dir := t.TempDir()
+	m := filepath.Join(dir, "m.safetensors")
+	train := "../../testdata/demo/train.jsonl"
+	if code, _, errs := runCmd(t, "", "train", "-q", "-o", m, "--vector-size", "8", "--filters", "4", "--unseen-rows", "10",
+		"--epochs", "1", "-j", "1", "--dev", demoDev, train); code != exitOK {
+		t.Fatalf("train: exit %d: %s", code, errs)
+	}
+	for _, c := range []struct {
+		file, want string
+	}{
+		{demoDev, "0 of these 129 records were among " + m + "'s training records and 129 among its dev records"},
+		{train, "512 of these 512 records were among"},
+	} {
+		_, _, errs := runCmd(t, "", "eval", "-m", m, c.file)
+		if !strings.Contains(errs, "convtag: caution: "+c.want) {
+			t.Errorf("eval %s: stderr %q lacks %q", c.file, errs, c.want)
+		}
+	}
+	// The dev records respelled: other case and spacing, same tokens.
+	b, _ := os.ReadFile(demoDev)
+	var respelled strings.Builder
+	for _, line := range strings.Split(strings.TrimSpace(string(b)), "\n") {
+		var r map[string]any
+		if err := json.Unmarshal([]byte(line), &r); err != nil {
+			t.Fatal(err)
+		}
+		r["text"] = "  " + strings.ToUpper(r["text"].(string)) + " "
+		out, _ := json.Marshal(r)
+		respelled.Write(append(out, '\n'))
+	}
+	respelledFile := filepath.Join(dir, "respelled.jsonl")
+	os.WriteFile(respelledFile, []byte(respelled.String()), 0o644)
+	if _, _, errs := runCmd(t, "", "eval", "-m", m, respelledFile); !strings.Contains(errs, "and 129 among its dev records") {
+		t.Errorf("eval on respelled dev records: %s", errs)
+	}
+	fresh := filepath.Join(dir, "fresh.jsonl")
+	os.WriteFile(fresh, []byte(`{"text":"the quay lamps flicker at dusk over the third slipway","label":"praise"}`+"\n"+`{"text":"which gangway takes bicycles on the late sailing","label":"schedule"}`+"\n"), 0o644)
+	if _, _, errs := runCmd(t, "", "eval", "-m", m, fresh); strings.Contains(errs, "caution: ") && strings.Contains(errs, "were among") {
+		t.Errorf("eval on fresh records: %s", errs)
 	}
 }

@@ -385,6 +385,10 @@ func runEval(a *app, f *evalFlags, args []string) error {
 	if len(s.gold) == 0 {
 		return withCode(exitFailure, fmt.Errorf("eval: %s: no record has a label of %s (%s)", strings.Join(args, ", "), name, labelList(m.Labels)))
 	}
+	if inTrain, inDev, ok := countSeen(m.Meta[metaSeen], m.Tokenizer(), s.texts); ok && inTrain+inDev > 0 {
+		fmt.Fprintf(a.stderr, "convtag: caution: %d of these %d records were among %s's training records and %d among its dev records (used to pick the epoch): the figures are optimistic; evaluate on records held out from training\n",
+			inTrain, len(s.texts), name, inDev)
+	}
 	opt := metrics.Options{TargetPrecision: f.target, Conservative: f.conservative}
 	p := m.NewPredictor()
 	probs := make([][]float32, len(s.texts))

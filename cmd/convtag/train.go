@@ -497,6 +497,7 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 		return withCode(exitFailure, err)
 	}
 	m.Meta[model.MetaTraining] = string(js)
+	m.Meta[metaSeen] = seenMeta(textsOf(train), textsOf(dev))
 	if !f.noFold {
 		model.FoldModel(m, f.foldHalf)
 	}
@@ -675,4 +676,13 @@ func humanBytes(n int) string {
 func round6(x float64) float64 {
 	v, _ := strconv.ParseFloat(strconv.FormatFloat(x, 'g', 6, 64), 64)
 	return v
+}
+
+// textsOf returns the records' texts.
+func textsOf(recs []tokenized) []string {
+	out := make([]string, len(recs))
+	for i, r := range recs {
+		out[i] = r.text
+	}
+	return out
 }
