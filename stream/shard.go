@@ -11,9 +11,11 @@ import (
 	"strings"
 )
 
-// Shard selects part K of N (1 <= K <= N) of one uncompressed input file:
-// the records whose first byte lies in the byte range
-// [(K−1)·size/N, K·size/N). The parts 1..N of a file hold each of its
+// Shard selects part K of N (1 <= K <= N) of one input file: for an
+// uncompressed file, the records whose first byte lies in the byte range
+// [(K−1)·size/N, K·size/N); for a zstd file of several independent frames
+// (as pzstd writes), the records whose first decoded byte comes
+// from a frame that begins in that range. The parts 1..N of a file hold each of its
 // records exactly once, in order, so their outputs joined in order are the
 // output of one run over the whole file. The zero value selects the whole
 // input.
@@ -53,10 +55,18 @@ func openShard(name string, s Shard) (*input, error) {
 	if !st.Mode().IsRegular() {
 		return fail(fmt.Errorf("%w: not a regular file (a part is a byte range of a file)", ErrShardInput))
 	}
-	if kind := sniff(bufio.NewReaderSize(io.NewSectionReader(f, 0, 64), 64)); kind != "" {
+	size := st.Size()
+	switch kind := sniff(bufio.NewReaderSize(io.NewSectionReader(f, 0, 64), 64)); kind {
+	case "":
+	case "zstd":
+		in, err := openZstdShard(f, size, s)
+		if err != nil {
+			return fail(err)
+		}
+		return in, nil
+	default:
 		return fail(fmt.Errorf("%w: it is %s-compressed and its parts cannot be found without decoding all before them; shard by file instead (one task per file)", ErrShardInput, kind))
 	}
-	size := st.Size()
 	from, err := recordStart(f, size, cut(size, s.K-1, s.N))
 	if err != nil {
 		return fail(err)

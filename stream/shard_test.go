@@ -4,14 +4,17 @@ import (
 	"bytes"
 	"context"
 	"errors"
+	"fmt"
 	"io"
 	"math/rand/v2"
 	"os"
+	"os/exec"
 	"path/filepath"
 	"strings"
 	"testing"
 
 	"github.com/klauspost/compress/gzip"
+	"github.com/klauspost/compress/zstd"
 )
 
 // shardFiles are inputs whose parts are easy to get wrong: no final
@@ -155,5 +158,94 @@ func TestShardRefuses(t *testing.T) {
 	}
 	if s, err := ParseShard("3/8"); err != nil || s != (Shard{3, 8}) {
 		t.Errorf("ParseShard(3/8) = %v, %v", s, err)
+	}
+}
+
+// TestZstdShardsJoinToTheWhole: a zstd file of several frames, written by
+// Debian's pzstd (frames cut at any byte, so records straddle them) and
+// built by hand from frames of whole and of cut records, an empty frame
+// and a skippable one, is sharded by frames: the parts joined in
+// order give the whole run's output for every N, and the decoded bytes of
+// the parts tile the decoded file.
+func TestZstdShardsJoinToTheWhole(t *testing.T) {
+	dir := t.TempDir()
+	var data bytes.Buffer
+	r := rand.New(rand.NewPCG(3, 4))
+	for i := range 40000 { // ~4.5 MB: pzstd cuts several frames
+		fmt.Fprintf(&data, "{\"text\":\"record %d %s\"}\n", i, strings.Repeat("x", r.IntN(200)))
+	}
+	plain := filepath.Join(dir, "in.jsonl")
+	os.WriteFile(plain, data.Bytes(), 0o644)
+	files := map[string]string{}
+	// By hand: frames ending mid-record, an empty frame, a skippable frame.
+	enc, _ := zstd.NewWriter(nil)
+	var hand bytes.Buffer
+	b := data.Bytes()
+	cuts := []int{0, 1000, 1000, 57321, 100000, 200013, len(b)}
+	for i := 0; i+1 < len(cuts); i++ {
+		hand.Write(enc.EncodeAll(b[cuts[i]:cuts[i+1]], nil))
+		if i == 2 {
+			hand.Write([]byte{0x50, 0x2a, 0x4d, 0x18, 3, 0, 0, 0, 'a', 'b', 'c'})
+		}
+	}
+	files["by hand"] = filepath.Join(dir, "hand.jsonl.zst")
+	os.WriteFile(files["by hand"], hand.Bytes(), 0o644)
+	if pz, err := exec.LookPath("pzstd"); err == nil {
+		p := filepath.Join(dir, "p.jsonl.zst")
+		if out, err := exec.Command(pz, "-q", "-1", "-p", "2", plain, "-o", p).CombinedOutput(); err != nil {
+			t.Fatalf("pzstd: %v %s", err, out)
+		}
+		files["pzstd"] = p
+	} else if os.Getenv("CI") != "" {
+		t.Fatal("pzstd is not installed (Debian package zstd)")
+	}
+	opts := Options{Tagger: nullTagger{}, Jobs: 2, BlockSize: 8192}
+	var whole bytes.Buffer
+	if _, err := Run(context.Background(), opts, []string{plain}, nil, &whole); err != nil {
+		t.Fatal(err)
+	}
+	for name, path := range files {
+		f, _ := os.Open(path)
+		st, _ := f.Stat()
+		offs, err := zstdFrames(f, st.Size())
+		f.Close()
+		if err != nil {
+			t.Fatalf("%s: %v", name, err)
+		}
+		if len(offs) < 3 {
+			t.Fatalf("%s: %d frames: the case tests nothing", name, len(offs)-1)
+		}
+		for _, n := range []int{1, 2, 3, 5, 8, 13} {
+			var joined, raw bytes.Buffer
+			for k := 1; k <= n; k++ {
+				in, err := openShard(path, Shard{k, n})
+				if err != nil {
+					t.Fatalf("%s %d/%d: %v", name, k, n, err)
+				}
+				part, err := io.ReadAll(in.r)
+				in.closer()
+				if err != nil {
+					t.Fatalf("%s %d/%d: %v", name, k, n, err)
+				}
+				raw.Write(part)
+				o := opts
+				o.Shard = Shard{k, n}
+				if _, err := Run(context.Background(), o, []string{path}, nil, &joined); err != nil {
+					t.Fatalf("%s %d/%d: %v", name, k, n, err)
+				}
+			}
+			if !bytes.Equal(raw.Bytes(), data.Bytes()) {
+				t.Errorf("%s N=%d: the parts' decoded bytes do not tile the file (%d of %d)", name, n, raw.Len(), data.Len())
+			}
+			if !bytes.Equal(joined.Bytes(), whole.Bytes()) {
+				t.Errorf("%s N=%d: joined parts differ from the whole run", name, n)
+			}
+		}
+	}
+	// One frame cannot be cut.
+	one := filepath.Join(dir, "one.jsonl.zst")
+	os.WriteFile(one, enc.EncodeAll(b, nil), 0o644)
+	if _, err := openShard(one, Shard{1, 2}); !errors.Is(err, ErrShardInput) || !strings.Contains(err.Error(), "one zstd frame") {
+		t.Errorf("one frame: %v", err)
 	}
 }
