@@ -22,6 +22,7 @@ import (
 	"convtag/model/metrics/plots"
 	"convtag/model/nb"
 	"convtag/model/token"
+	"convtag/model/train"
 	"convtag/stream"
 )
 
@@ -114,12 +115,12 @@ func addFoldTrainFlags(fl *pflag.FlagSet, t *trainFlags) {
 	fl.IntSliceVar(&t.widths, "widths", model.DefaultWidths, "with --folds: convolution window widths")
 	fl.IntVar(&t.filters, "filters", model.DefaultFilters, "with --folds: filters per width")
 	fl.IntVar(&t.hidden, "hidden", 0, "with --folds: size of a ReLU hidden layer; 0 for none")
-	fl.IntVar(&t.epochs, "epochs", model.DefaultEpochs, "with --folds: most epochs")
-	fl.IntVar(&t.patience, "patience", model.DefaultPatience, "with --folds: epochs without a better dev accuracy before stopping; 0 never")
-	fl.IntVar(&t.batch, "batch", model.DefaultBatch, "with --folds: mini-batch size")
+	fl.IntVar(&t.epochs, "epochs", train.DefaultEpochs, "with --folds: most epochs")
+	fl.IntVar(&t.patience, "patience", train.DefaultPatience, "with --folds: epochs without a better dev accuracy before stopping; 0 never")
+	fl.IntVar(&t.batch, "batch", train.DefaultBatch, "with --folds: mini-batch size")
 	fl.Uint64Var(&t.seed, "seed", defaultSeed, "with --folds: seed for the folds, initialisation, splits, shuffling and dropout")
 	fl.IntVarP(&t.jobs, "jobs", "j", 0, "with --folds: training threads (default: all cores)")
-	fl.StringVar(&t.optimizer, "optimizer", model.OptAdadelta, "with --folds: adadelta or adam")
+	fl.StringVar(&t.optimizer, "optimizer", train.OptAdadelta, "with --folds: adadelta or adam")
 	fl.Float64Var(&t.lr, "learning-rate", 0, "with --folds: learning rate (default: 1 for adadelta, 0.001 for adam)")
 	fl.IntVar(&t.minCount, "min-seen", defaultMinCount, "with --folds: words seen fewer times share the --unseen-rows")
 	fl.IntVar(&t.maxWords, "max-words", 0, "with --folds: keep at most this many words; 0 for all")
@@ -915,7 +916,7 @@ func runFolds(a *app, f *evalFlags, args []string) error {
 			fmt.Fprintf(a.stderr, "convtag: warning: label %q has %d records, fewer than %d folds: some folds do not test it\n", l, n, f.folds)
 		}
 	}
-	fold := model.StratifiedFolds(y, f.folds, t.seed)
+	fold := train.StratifiedFolds(y, f.folds, t.seed)
 	out := foldsOutput{Files: args, Folds: f.folds, Seed: t.seed, Records: len(all), Labels: labels,
 		Options: map[string]any{"vector_size": t.dim, "widths": t.widths, "filters": t.filters, "hidden": t.hidden, "epochs": t.epochs,
 			"patience": t.patience, "batch": t.batch, "optimizer": t.optimizer, "learning_rate": t.lr, "min_seen": t.minCount,
@@ -959,7 +960,7 @@ func trainFold(t *trainFlags, all []tokenized, y []int, labels []string, rest, t
 	for i, j := range rest {
 		ry[i] = y[j]
 	}
-	tr, dv := model.StratifiedSplit(ry, t.devFraction, t.seed)
+	tr, dv := train.StratifiedSplit(ry, t.devFraction, t.seed)
 	pick := func(idx []int) []int {
 		out := make([]int, len(idx))
 		for i, j := range idx {
@@ -974,33 +975,33 @@ func trainFold(t *trainFlags, all []tokenized, y []int, labels []string, rest, t
 			counts[w]++
 		}
 	}
-	words := model.BuildWords(counts, t.minCount, t.maxWords)
+	words := train.BuildWords(counts, t.minCount, t.maxWords)
 	cfg := model.Config{Dim: t.dim, Widths: t.widths, Filters: t.filters, Hidden: t.hidden, Buckets: t.buckets}
 	m, err := model.New(cfg, token.Settings{}, labels, words, t.seed)
 	if err != nil {
 		return foldResult{}, err
 	}
-	examples := func(idx []int) []model.Example {
-		out := make([]model.Example, len(idx))
+	examples := func(idx []int) []train.Example {
+		out := make([]train.Example, len(idx))
 		for i, j := range idx {
 			rows := make([]int32, len(all[j].tokens))
 			for k, w := range all[j].tokens {
 				rows[k] = m.Vocab.Row([]byte(w))
 			}
-			out[i] = model.Example{Rows: rows, Label: y[j]}
+			out[i] = train.Example{Rows: rows, Label: y[j]}
 		}
 		return out
 	}
 	trEx, devEx, testEx := examples(trainIdx), examples(devIdx), examples(test)
-	opt := model.TrainOptions{Epochs: t.epochs, Patience: t.patience, Batch: t.batch, Seed: t.seed,
+	opt := train.TrainOptions{Epochs: t.epochs, Patience: t.patience, Batch: t.batch, Seed: t.seed,
 		Jobs: t.jobs, Opt: t.optimizer, LR: t.lr}
 	if t.patience == 0 {
 		opt.Patience = -1
 	}
 	if t.classWeights == "balanced" {
-		opt.ClassWeights = model.BalancedWeights(trEx, len(labels))
+		opt.ClassWeights = train.BalancedWeights(trEx, len(labels))
 	}
-	res, err := model.Train(m, trEx, devEx, opt)
+	res, err := train.Train(m, trEx, devEx, opt)
 	if err != nil {
 		return foldResult{}, err
 	}

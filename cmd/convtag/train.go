@@ -24,6 +24,7 @@ import (
 	"convtag/model/metrics"
 	"convtag/model/nb"
 	"convtag/model/token"
+	"convtag/model/train"
 	"convtag/model/vectors"
 	"convtag/stream"
 )
@@ -121,12 +122,12 @@ finish, and the run ends as usual.
 	fl.IntSliceVar(&f.widths, "widths", model.DefaultWidths, "convolution window widths, in words")
 	fl.IntVar(&f.filters, "filters", model.DefaultFilters, "filters per width")
 	fl.IntVar(&f.hidden, "hidden", 0, "size of a ReLU hidden layer before the output; 0 for none")
-	fl.IntVar(&f.epochs, "epochs", model.DefaultEpochs, "most epochs")
-	fl.IntVar(&f.patience, "patience", model.DefaultPatience, "stop after this many epochs without a better dev accuracy; 0 never stops early")
-	fl.IntVar(&f.batch, "batch", model.DefaultBatch, "mini-batch size")
+	fl.IntVar(&f.epochs, "epochs", train.DefaultEpochs, "most epochs")
+	fl.IntVar(&f.patience, "patience", train.DefaultPatience, "stop after this many epochs without a better dev accuracy; 0 never stops early")
+	fl.IntVar(&f.batch, "batch", train.DefaultBatch, "mini-batch size")
 	fl.Uint64Var(&f.seed, "seed", defaultSeed, "seed for initialisation, the dev split, shuffling and dropout")
 	fl.IntVarP(&f.jobs, "jobs", "j", 0, "worker threads (default: all cores); the model depends on it")
-	fl.StringVar(&f.optimizer, "optimizer", model.OptAdadelta, "adadelta or adam")
+	fl.StringVar(&f.optimizer, "optimizer", train.OptAdadelta, "adadelta or adam")
 	fl.Float64Var(&f.lr, "learning-rate", 0, "learning rate (default: 1 for adadelta, 0.001 for adam)")
 	fl.IntVar(&f.minCount, "min-seen", defaultMinCount, "words seen fewer times have no row of their own and share the --unseen-rows")
 	fl.IntVar(&f.maxWords, "max-words", 0, "keep at most this many words, most frequent first; 0 for all")
@@ -157,7 +158,7 @@ func (f *trainFlags) check(args []string) error {
 		return usageErr("", "train: --epochs and --batch must be at least 1, --patience and --jobs at least 0")
 	case f.minCount < 1 || f.maxWords < 0:
 		return usageErr("", "train: --min-seen must be at least 1 and --max-words at least 0")
-	case f.optimizer != model.OptAdadelta && f.optimizer != model.OptAdam:
+	case f.optimizer != train.OptAdadelta && f.optimizer != train.OptAdam:
 		return usageErr("--optimizer adadelta or --optimizer adam", "train: unknown --optimizer %q", f.optimizer)
 	case f.classWeights != "none" && f.classWeights != "balanced":
 		return usageErr("--class-weights none or --class-weights balanced", "train: unknown --class-weights %q", f.classWeights)
@@ -260,7 +261,7 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 		return out
 	}
 	all := cut(set.Records)
-	var train, dev []tokenized
+	var trainRecs, dev []tokenized
 	var devFiles []string
 	if f.dev != "" {
 		devFiles = []string{f.dev}
@@ -268,22 +269,22 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 		if err != nil {
 			return err
 		}
-		train, dev = all, cut(dset.Records)
+		trainRecs, dev = all, cut(dset.Records)
 	} else {
 		labelsOf := labelIndex(all)
 		idx := make([]int, len(all))
 		for i, t := range all {
 			idx[i] = labelsOf[t.label]
 		}
-		tr, dv := model.StratifiedSplit(idx, f.devFraction, f.seed)
+		tr, dv := train.StratifiedSplit(idx, f.devFraction, f.seed)
 		for _, i := range tr {
-			train = append(train, all[i])
+			trainRecs = append(trainRecs, all[i])
 		}
 		for _, i := range dv {
 			dev = append(dev, all[i])
 		}
 	}
-	labels := sortedLabels(train)
+	labels := sortedLabels(trainRecs)
 	if len(labels) < 2 {
 		return withCode(exitFailure, fmt.Errorf("train: %s: need at least 2 different labels, found %d", strings.Join(args, ", "), len(labels)))
 	}
@@ -310,12 +311,12 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 
 	// Vocabulary and vectors.
 	counts := map[string]int{}
-	for _, t := range train {
+	for _, t := range trainRecs {
 		for _, w := range t.tokens {
 			counts[w]++
 		}
 	}
-	words := model.BuildWords(counts, f.minCount, f.maxWords)
+	words := train.BuildWords(counts, f.minCount, f.maxWords)
 	var vecs *vectors.Set
 	if f.vectors != "" {
 		vf, err := stream.Open(f.vectors, nil)
@@ -369,32 +370,32 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 		say("vectors: %s covers %d of %d vocabulary words (%.1f%%, %.1f%% of their training tokens); the rest start random",
 			f.vectors, found, len(words), 100*c, 100*float64(tokFound)/float64(max(tokAll, 1)))
 	}
-	examples := func(ts []tokenized) []model.Example {
-		out := make([]model.Example, len(ts))
+	examples := func(ts []tokenized) []train.Example {
+		out := make([]train.Example, len(ts))
 		for i, t := range ts {
 			rows := make([]int32, len(t.tokens))
 			for j, w := range t.tokens {
 				rows[j] = m.Vocab.Row([]byte(w))
 			}
-			out[i] = model.Example{Rows: rows, Label: li[t.label]}
+			out[i] = train.Example{Rows: rows, Label: li[t.label]}
 		}
 		return out
 	}
-	trEx, devEx := examples(train), examples(dev)
+	trEx, devEx := examples(trainRecs), examples(dev)
 
 	if f.jobs == 0 {
 		f.jobs = runtime.GOMAXPROCS(0)
 	}
-	opt := model.TrainOptions{Epochs: f.epochs, Patience: f.patience, Batch: f.batch, Seed: f.seed,
+	opt := train.TrainOptions{Epochs: f.epochs, Patience: f.patience, Batch: f.batch, Seed: f.seed,
 		Jobs: f.jobs, Opt: f.optimizer, LR: f.lr, Frozen: frozen, Stop: ctx.Done()}
 	if f.patience == 0 {
 		opt.Patience = -1
 	}
 	if f.classWeights == "balanced" {
-		opt.ClassWeights = model.BalancedWeights(trEx, len(labels))
+		opt.ClassWeights = train.BalancedWeights(trEx, len(labels))
 	}
 	say("training on %d records (%s), %d dev records; %d words + %d unseen-word rows, d=%d, widths %s x %d filters",
-		len(train), countString(train, labels), len(dev), len(words), f.buckets, f.dim, intsString(f.widths), f.filters)
+		len(trainRecs), countString(trainRecs, labels), len(dev), len(words), f.buckets, f.dim, intsString(f.widths), f.filters)
 	bar := newTrainBar(a, f.quiet, len(trEx))
 	start := time.Now()
 	opt.OnBatch = func(done, total int) {
@@ -402,7 +403,7 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 			bar.Set(done)
 		}
 	}
-	opt.OnEpoch = func(e model.EpochStats) {
+	opt.OnEpoch = func(e train.EpochStats) {
 		if bar != nil {
 			bar.Reset()
 			bar.Clear()
@@ -413,11 +414,11 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 			e.Epoch, f.epochs, e.Loss, e.TrainAcc, e.DevAcc, e.DevMacroF1, humanRate(float64(e.Tokens)/e.Seconds),
 			el.Round(time.Second), left.Round(time.Second))
 	}
-	res, err := model.Train(m, trEx, devEx, opt)
+	res, err := train.Train(m, trEx, devEx, opt)
 	if bar != nil {
 		bar.Finish()
 	}
-	if errors.Is(err, model.ErrStopped) {
+	if errors.Is(err, train.ErrStopped) {
 		return withCode(exitFailure, errInterrupted)
 	}
 	if err != nil {
@@ -425,8 +426,8 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 	}
 
 	// The baseline, on the same training records.
-	docs, ys := make([][]string, len(train)), make([]int, len(train))
-	for i, t := range train {
+	docs, ys := make([][]string, len(trainRecs)), make([]int, len(trainRecs))
+	for i, t := range trainRecs {
 		docs[i], ys[i] = t.tokens, li[t.label]
 	}
 	base, err := nb.Fit(docs, ys, len(labels), 1)
@@ -476,15 +477,15 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 	sum := trainSummary{
 		Description: f.description, IntendedUse: f.intendedUse, NotFor: f.notFor,
 		VectorsFile: vecName, Scorer: "network", DevKnownShare: devKnown,
-		DataSHA256: dataHash(train, dev),
+		DataSHA256: dataHash(trainRecs, dev),
 		Files:      baseNames(args), DevFiles: baseNames(devFiles),
-		Records:    map[string]int{"train": len(train), "dev": len(dev), "skipped": set.Skipped, "multi_label": set.Multi},
-		Counts:     map[string]map[string]int{"train": countMap(train), "dev": countMap(dev)},
+		Records:    map[string]int{"train": len(trainRecs), "dev": len(dev), "skipped": set.Skipped, "multi_label": set.Multi},
+		Counts:     map[string]map[string]int{"train": countMap(trainRecs), "dev": countMap(dev)},
 		Vocabulary: len(words), Coverage: coverage,
 		Options: map[string]any{"epochs": f.epochs, "patience": f.patience, "batch": f.batch, "seed": f.seed,
 			"jobs": opt.Jobs, "optimizer": f.optimizer, "learning_rate": f.lr, "min_seen": f.minCount,
 			"max_words": f.maxWords, "class_weights": f.classWeights, "freeze_vectors": f.freeze,
-			"dropout": model.DefaultDropout, "max_norm": model.DefaultMaxNorm, "dev_fraction": f.devFraction},
+			"dropout": train.DefaultDropout, "max_norm": train.DefaultMaxNorm, "dev_fraction": f.devFraction},
 		EpochsRun: res.EpochsRun, BestEpoch: res.BestEpoch,
 		Network:  netScores,
 		Baseline: bs,
@@ -633,9 +634,9 @@ func intsString(v []int) string {
 
 // dataHash is the SHA-256 of the training and dev records (label, NUL,
 // text, newline each; the dev part after a separator line), in order.
-func dataHash(train, dev []tokenized) string {
+func dataHash(trainRecs, dev []tokenized) string {
 	h := sha256.New()
-	for i, part := range [][]tokenized{train, dev} {
+	for i, part := range [][]tokenized{trainRecs, dev} {
 		if i > 0 {
 			io.WriteString(h, "\x01\n")
 		}
