@@ -1,5 +1,6 @@
 // Package model owns the network: the vocabulary, the
-// safetensors model file, the forward pass (direct and folded) and training.
+// safetensors model file and the forward pass (direct and folded). Training
+// lives in package train (model/train), which imports this one.
 //
 // It is pure computation. It must not read or write streams of records, and
 // its only I/O is opening (memory-mapping) and saving a model file. The

@@ -8,5 +8,5 @@ import (
 )
 
 // TestMain runs the tests, then prints which kernel sets the forward-pass
-// and training tests compared on this CPU and build (see kerneltest.Main).
+// tests compared on this CPU and build (see kerneltest.Main).
 func TestMain(m *testing.M) { os.Exit(kerneltest.Main(m, "model")) }

@@ -77,3 +77,13 @@ func (m *Model) Close() error {
 	m.closer = nil
 	return c()
 }
+
+// AppendRows appends the embedding rows of text's tokens to dst, cutting
+// the text with m's tokenizer into the scratch ts.
+func (m *Model) AppendRows(dst []int32, ts *token.Tokens, text []byte) []int32 {
+	m.Tokenizer().Tokenize(ts, text)
+	for i := range ts.Len() {
+		dst = append(dst, m.Vocab.Row(ts.At(i)))
+	}
+	return dst
+}

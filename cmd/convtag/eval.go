@@ -1,10 +1,12 @@
 package main
 
 import (
+	"context"
 	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
+	"maps"
 	"math"
 	"path/filepath"
 	"runtime"
@@ -22,6 +24,7 @@ import (
 	"convtag/model/metrics/plots"
 	"convtag/model/nb"
 	"convtag/model/token"
+	"convtag/model/train"
 	"convtag/stream"
 )
 
@@ -36,11 +39,12 @@ type evalFlags struct {
 	asJSON, noBaseline, conservative bool
 	target                           float64
 	folds                            int
-	train                            trainFlags // for --folds
+	train                            trainFlags     // for --folds
+	recipeFlags                      *pflag.FlagSet // train's recipe flags, which only apply with --folds
 }
 
 func newEvalCmd(a *app) *cobra.Command {
-	var f evalFlags
+	f := evalFlags{train: trainFlags{r: train.Defaults()}}
 	c := &cobra.Command{
 		Use:   "eval [-m MODEL] [flags] FILE...",
 		Short: "Evaluate a model on labelled records",
@@ -67,8 +71,10 @@ too, so "at least that threshold" keeps the promise; pass it to tag
 precision-recall curves and the learning curve of the model's training.
 
 --folds K instead trains K networks and baselines by stratified K-fold
-cross-validation on the FILEs (with the training flags, as train takes them)
-and reports each fold and the mean ± standard deviation.
+cross-validation on the FILEs and reports each fold and the mean ± standard
+deviation. It takes train's recipe flags, with train's names, defaults and
+meaning (--epochs, --seed, --vector-size and the others below that train
+lists); they apply only with --folds.
 
 Records whose label the model does not know are counted and left out of the
 figures. Records with several labels are scored on the first.
@@ -102,29 +108,9 @@ figures. Records with several labels are scored on the first.
 	fl.StringVar(&f.baselineTrain, "baseline-train", "", "fit the naive-Bayes baseline on these labelled records instead of using the stored one")
 	fl.BoolVar(&f.noBaseline, "no-baseline", false, "leave out the baseline")
 	fl.IntVar(&f.folds, "folds", 0, "cross-validate training itself with this many stratified folds (needs no model)")
-	addFoldTrainFlags(fl, &f.train)
+	f.recipeFlags = f.train.r.FlagSet()
+	fl.AddFlagSet(f.recipeFlags)
 	return c
-}
-
-// addFoldTrainFlags adds the training flags --folds uses, with train's
-// names and defaults.
-func addFoldTrainFlags(fl *pflag.FlagSet, t *trainFlags) {
-	fl.Float64Var(&t.devFraction, "dev-fraction", defaultDevFraction, "with --folds: share of each training part held out for early stopping")
-	fl.IntVar(&t.dim, "vector-size", model.DefaultDim, "with --folds: embedding size")
-	fl.IntSliceVar(&t.widths, "widths", model.DefaultWidths, "with --folds: convolution window widths")
-	fl.IntVar(&t.filters, "filters", model.DefaultFilters, "with --folds: filters per width")
-	fl.IntVar(&t.hidden, "hidden", 0, "with --folds: size of a ReLU hidden layer; 0 for none")
-	fl.IntVar(&t.epochs, "epochs", model.DefaultEpochs, "with --folds: most epochs")
-	fl.IntVar(&t.patience, "patience", model.DefaultPatience, "with --folds: epochs without a better dev accuracy before stopping; 0 never")
-	fl.IntVar(&t.batch, "batch", model.DefaultBatch, "with --folds: mini-batch size")
-	fl.Uint64Var(&t.seed, "seed", defaultSeed, "with --folds: seed for the folds, initialisation, splits, shuffling and dropout")
-	fl.IntVarP(&t.jobs, "jobs", "j", 0, "with --folds: training threads (default: all cores)")
-	fl.StringVar(&t.optimizer, "optimizer", model.OptAdadelta, "with --folds: adadelta or adam")
-	fl.Float64Var(&t.lr, "learning-rate", 0, "with --folds: learning rate (default: 1 for adadelta, 0.001 for adam)")
-	fl.IntVar(&t.minCount, "min-seen", defaultMinCount, "with --folds: words seen fewer times share the --unseen-rows")
-	fl.IntVar(&t.maxWords, "max-words", 0, "with --folds: keep at most this many words; 0 for all")
-	fl.IntVar(&t.buckets, "unseen-rows", model.DefaultBuckets, "with --folds: rows shared among words with no row of their own")
-	fl.StringVar(&t.classWeights, "class-weights", defaultClassWeights, "with --folds: none or balanced")
 }
 
 func (f *evalFlags) check(cmd *cobra.Command, args []string) error {
@@ -145,8 +131,8 @@ func (f *evalFlags) check(cmd *cobra.Command, args []string) error {
 	}
 	if f.folds == 0 {
 		var set []string
-		cmd.Flags().Visit(func(fl *pflag.Flag) {
-			if strings.HasPrefix(fl.Usage, "with --folds") {
+		f.recipeFlags.VisitAll(func(fl *pflag.Flag) {
+			if fl.Changed {
 				set = append(set, "--"+fl.Name)
 			}
 		})
@@ -385,7 +371,7 @@ func runEval(a *app, f *evalFlags, args []string) error {
 	if len(s.gold) == 0 {
 		return withCode(exitFailure, fmt.Errorf("eval: %s: no record has a label of %s (%s)", strings.Join(args, ", "), name, labelList(m.Labels)))
 	}
-	if inTrain, inDev, ok := countSeen(m.Meta[metaSeen], m.Tokenizer(), s.texts); ok && inTrain+inDev > 0 {
+	if inTrain, inDev, ok := train.CountSeen(m.Meta[train.MetaSeen], m.Tokenizer(), s.texts); ok && inTrain+inDev > 0 {
 		fmt.Fprintf(a.stderr, "convtag: caution: %d of these %d records were among %s's training records and %d among its dev records (used to pick the epoch): the figures are optimistic; evaluate on records held out from training\n",
 			inTrain, len(s.texts), name, inDev)
 	}
@@ -906,38 +892,39 @@ func runFolds(a *app, f *evalFlags, args []string) error {
 	if err != nil {
 		return err
 	}
-	t := &f.train
-	if t.jobs == 0 {
-		t.jobs = runtime.GOMAXPROCS(0)
+	r := f.train.r
+	if r.Jobs == 0 {
+		r.Jobs = runtime.GOMAXPROCS(0)
 	}
-	tok := token.New(token.Settings{})
-	var ts token.Tokens
-	all := make([]tokenized, len(set.Records))
-	for i, r := range set.Records {
-		all[i] = tokenized{tokens: tokenStrings(tok, &ts, r.Text), label: r.Labels[0], text: r.Text}
+	recs := recipeRecords(set.Records)
+	counts := map[string]int{}
+	for _, rec := range recs {
+		counts[rec.Label]++
 	}
-	labels := sortedLabels(all)
+	labels := slices.Sorted(maps.Keys(counts))
 	if len(labels) < 2 {
 		return withCode(exitFailure, fmt.Errorf("eval: %s: need at least 2 different labels, found %d", strings.Join(args, ", "), len(labels)))
 	}
-	if f.folds > len(all) {
-		return usageErr("", "eval: --folds %d but only %d records", f.folds, len(all))
+	if f.folds > len(recs) {
+		return usageErr("", "eval: --folds %d but only %d records", f.folds, len(recs))
 	}
-	li := labelIndex(all)
-	y := make([]int, len(all))
-	for i, r := range all {
-		y[i] = li[r.label]
+	y := make([]int, len(recs))
+	for i, rec := range recs {
+		y[i], _ = slices.BinarySearch(labels, rec.Label)
 	}
 	for _, l := range labels {
-		if n := countMap(all)[l]; n < f.folds {
+		if n := counts[l]; n < f.folds {
 			fmt.Fprintf(a.stderr, "convtag: warning: label %q has %d records, fewer than %d folds: some folds do not test it\n", l, n, f.folds)
 		}
 	}
-	fold := model.StratifiedFolds(y, f.folds, t.seed)
-	out := foldsOutput{Files: args, Folds: f.folds, Seed: t.seed, Records: len(all), Labels: labels,
-		Options: map[string]any{"vector_size": t.dim, "widths": t.widths, "filters": t.filters, "hidden": t.hidden, "epochs": t.epochs,
-			"patience": t.patience, "batch": t.batch, "optimizer": t.optimizer, "learning_rate": t.lr, "min_seen": t.minCount,
-			"max_words": t.maxWords, "unseen_rows": t.buckets, "class_weights": t.classWeights, "dev_fraction": t.devFraction, "jobs": t.jobs}}
+	fold := train.StratifiedFolds(y, f.folds, r.Seed)
+	out := foldsOutput{Files: args, Folds: f.folds, Seed: r.Seed, Records: len(recs), Labels: labels,
+		Options: map[string]any{"vector_size": r.Dim, "widths": r.Widths, "filters": r.Filters, "hidden": r.Hidden, "epochs": r.Epochs,
+			"patience": r.Patience, "batch": r.Batch, "optimizer": r.Optimizer, "learning_rate": r.LR, "min_seen": r.MinSeen,
+			"max_words": r.MaxWords, "unseen_rows": r.Buckets, "class_weights": r.ClassWeights, "dev_fraction": r.DevFraction, "jobs": r.Jobs}}
+	// Every fold's model has every label, so that each fold is scored on
+	// the same classes; the network is scored on its direct path.
+	r.Labels, r.NoFold = labels, true
 	var na, nf, ba, bf []float64
 	for k := range f.folds {
 		var rest, test []int
@@ -948,7 +935,7 @@ func runFolds(a *app, f *evalFlags, args []string) error {
 				rest = append(rest, i)
 			}
 		}
-		fr, err := trainFold(t, all, y, labels, rest, test)
+		fr, err := trainFold(r, recs, y, rest, test)
 		if err != nil {
 			return withCode(exitFailure, fmt.Errorf("eval: fold %d: %w", k+1, err))
 		}
@@ -970,81 +957,38 @@ func runFolds(a *app, f *evalFlags, args []string) error {
 	return writeFoldsText(a.stdout, &out)
 }
 
-// trainFold trains and scores one fold: rest are the training records'
-// indices, test the fold's.
-func trainFold(t *trainFlags, all []tokenized, y []int, labels []string, rest, test []int) (foldResult, error) {
-	ry := make([]int, len(rest))
+// trainFold runs the recipe on the records rest (it holds out its own dev
+// split) and scores the network and the baseline on the records test; y
+// are the records' label indices.
+func trainFold(r train.Recipe, recs []train.Record, y []int, rest, test []int) (foldResult, error) {
+	part := make([]train.Record, len(rest))
 	for i, j := range rest {
-		ry[i] = y[j]
+		part[i] = recs[j]
 	}
-	tr, dv := model.StratifiedSplit(ry, t.devFraction, t.seed)
-	pick := func(idx []int) []int {
-		out := make([]int, len(idx))
-		for i, j := range idx {
-			out[i] = rest[j]
-		}
-		return out
-	}
-	trainIdx, devIdx := pick(tr), pick(dv)
-	counts := map[string]int{}
-	for _, i := range trainIdx {
-		for _, w := range all[i].tokens {
-			counts[w]++
-		}
-	}
-	words := model.BuildWords(counts, t.minCount, t.maxWords)
-	cfg := model.Config{Dim: t.dim, Widths: t.widths, Filters: t.filters, Hidden: t.hidden, Buckets: t.buckets}
-	m, err := model.New(cfg, token.Settings{}, labels, words, t.seed)
+	m, sum, err := r.Fit(context.Background(), part, nil, train.Progress{})
 	if err != nil {
 		return foldResult{}, err
 	}
-	examples := func(idx []int) []model.Example {
-		out := make([]model.Example, len(idx))
-		for i, j := range idx {
-			rows := make([]int32, len(all[j].tokens))
-			for k, w := range all[j].tokens {
-				rows[k] = m.Vocab.Row([]byte(w))
-			}
-			out[i] = model.Example{Rows: rows, Label: y[j]}
-		}
-		return out
-	}
-	trEx, devEx, testEx := examples(trainIdx), examples(devIdx), examples(test)
-	opt := model.TrainOptions{Epochs: t.epochs, Patience: t.patience, Batch: t.batch, Seed: t.seed,
-		Jobs: t.jobs, Opt: t.optimizer, LR: t.lr}
-	if t.patience == 0 {
-		opt.Patience = -1
-	}
-	if t.classWeights == "balanced" {
-		opt.ClassWeights = model.BalancedWeights(trEx, len(labels))
-	}
-	res, err := model.Train(m, trEx, devEx, opt)
-	if err != nil {
-		return foldResult{}, err
-	}
-	p := m.NewPredictor()
-	gold, pred := make([]int, len(test)), make([]int, len(test))
-	for i, e := range testEx {
-		gold[i] = e.Label
-		pred[i], _ = metrics.Predict(p.PredictRows(e.Rows))
-	}
-	fr := foldResult{Train: len(trainIdx), Dev: len(devIdx), Test: len(test), Epochs: res.BestEpoch, Duration: res.Seconds}
-	fr.NetAcc = metrics.Accuracy(gold, pred)
-	fr.NetF1 = foldMacroF1(gold, pred, len(labels))
-
-	docs, ys := make([][]string, len(trainIdx)), make([]int, len(trainIdx))
-	for i, j := range trainIdx {
-		docs[i], ys[i] = all[j].tokens, y[j]
-	}
-	base, err := nb.Fit(docs, ys, len(labels), 1)
+	base, err := nb.Decode(m.Baseline)
 	if err != nil {
 		return foldResult{}, fmt.Errorf("baseline: %w", err)
 	}
+	p := m.NewPredictor()
+	tok := m.Tokenizer()
+	var ts token.Tokens
+	var rows []int32
+	gold, pred, bpred := make([]int, len(test)), make([]int, len(test)), make([]int, len(test))
 	for i, j := range test {
-		pred[i] = base.Predict(all[j].tokens)
+		gold[i] = y[j]
+		rows = m.AppendRows(rows[:0], &ts, []byte(recs[j].Text))
+		pred[i], _ = metrics.Predict(p.PredictRows(rows))
+		bpred[i] = base.Predict(tokenStrings(tok, &ts, recs[j].Text))
 	}
-	fr.BaseAcc = metrics.Accuracy(gold, pred)
-	fr.BaseF1 = foldMacroF1(gold, pred, len(labels))
+	fr := foldResult{Train: sum.Records["train"], Dev: sum.Records["dev"], Test: len(test), Epochs: sum.BestEpoch, Duration: sum.Seconds}
+	fr.NetAcc = metrics.Accuracy(gold, pred)
+	fr.NetF1 = foldMacroF1(gold, pred, len(r.Labels))
+	fr.BaseAcc = metrics.Accuracy(gold, bpred)
+	fr.BaseF1 = foldMacroF1(gold, bpred, len(r.Labels))
 	return fr, nil
 }
 

@@ -2,6 +2,7 @@ package main
 
 import (
 	"bytes"
+	"convtag/model/train"
 	"os"
 	"path/filepath"
 	"runtime"
@@ -174,28 +175,28 @@ func TestFlagErrorsAreUsage(t *testing.T) {
 	}
 }
 
-// eval --folds cross-validates the recipe train would run: every training
-// flag it takes has train's name and default.
-func TestFoldFlagsMatchTrain(t *testing.T) {
+// TestRecipeFlags: train and eval --folds both take every flag of the
+// recipe (train.Recipe.FlagSet), with the recipe's defaults.
+func TestRecipeFlags(t *testing.T) {
 	cmds := map[string]*cobra.Command{}
 	for _, c := range newRoot(&app{}).Commands() {
 		cmds[c.Name()] = c
 	}
+	r := train.Defaults()
 	n := 0
-	cmds["eval"].Flags().VisitAll(func(f *pflag.Flag) {
-		if !strings.HasPrefix(f.Usage, "with --folds:") {
-			return
-		}
+	r.FlagSet().VisitAll(func(rf *pflag.Flag) {
 		n++
-		tf := cmds["train"].Flags().Lookup(f.Name)
-		if tf == nil {
-			t.Errorf("eval --%s: train has no such flag", f.Name)
-		} else if tf.DefValue != f.DefValue {
-			t.Errorf("--%s: eval default %q, train default %q", f.Name, f.DefValue, tf.DefValue)
+		for _, name := range []string{"train", "eval"} {
+			f := cmds[name].Flags().Lookup(rf.Name)
+			if f == nil {
+				t.Errorf("%s has no --%s", name, rf.Name)
+			} else if f.DefValue != rf.DefValue {
+				t.Errorf("%s --%s: default %q, the recipe's %q", name, rf.Name, f.DefValue, rf.DefValue)
+			}
 		}
 	})
 	if n < 10 {
-		t.Fatalf("only %d training flags on eval", n)
+		t.Fatalf("only %d recipe flags", n)
 	}
 }
 

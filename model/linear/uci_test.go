@@ -6,18 +6,18 @@ import (
 	"os"
 	"testing"
 
-	"convtag/model"
 	"convtag/model/internal/uci"
 	"convtag/model/linear"
 	"convtag/model/nb"
 	"convtag/model/token"
+	"convtag/model/train"
 )
 
 // TestUCIMatchesSklearn runs the baseline recipe on the UCI Sentiment
 // Labelled Sentences (Kotzias et al. 2015, fetched from npm
 // sentiment@5.0.2 into testdata/cache/uci), the three sources joined,
 // tokenised by the project's tokenizer: a fixed stratified 80/20 split
-// (model.StratifiedSplit, seed 1), 10% of the 80 held out as the
+// (train.StratifiedSplit, seed 1), 10% of the 80 held out as the
 // development set for choosing C over DefaultGrid, then a refit on the
 // whole 80 with that C, scored on the 20. scikit-learn
 // (testdata/sklearn_linear.py) does the same on the same tokens. Checked:
@@ -57,10 +57,10 @@ func TestUCIMatchesSklearn(t *testing.T) {
 			labels[i] = 1
 		}
 	}
-	rest, held := model.StratifiedSplit(labels, 0.2, 1)
+	rest, held := train.StratifiedSplit(labels, 0.2, 1)
 	fullD, fullY := sub(docs, labels, rest)
 	testD, testY := sub(docs, labels, held)
-	tr, dv := model.StratifiedSplit(fullY, 0.1, 1)
+	tr, dv := train.StratifiedSplit(fullY, 0.1, 1)
 	trainD, trainY := sub(fullD, fullY, tr)
 	devD, devY := sub(fullD, fullY, dv)
 

@@ -47,7 +47,7 @@ func sample() ([]string, []int, [][]float32) {
 	return labels, gold, probs
 }
 
-// summary is a training summary of the shape model.Train's result takes
+// summary is a training summary of the shape train.Train's result takes
 // (a "curve" of epochs and a "best_epoch"), nested as a command may store it.
 const summary = `{"data_sha256":"x","network":{"curve":[
  {"epoch":1,"loss":1.52,"train_accuracy":0.35,"dev_accuracy":0.52,"dev_macro_f1":0.41,"tokens":9000,"seconds":1.1},

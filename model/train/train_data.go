@@ -1,4 +1,4 @@
-package model
+package train
 
 import (
 	"math"
@@ -39,16 +39,6 @@ func BuildWords(counts map[string]int, minCount, maxWords int) []string {
 		words = words[:maxWords]
 	}
 	return words
-}
-
-// AppendRows appends the embedding rows of text's tokens to dst, cutting
-// the text with m's tokenizer into the scratch ts.
-func (m *Model) AppendRows(dst []int32, ts *token.Tokens, text []byte) []int32 {
-	m.Tokenizer().Tokenize(ts, text)
-	for i := range ts.Len() {
-		dst = append(dst, m.Vocab.Row(ts.At(i)))
-	}
-	return dst
 }
 
 // StratifiedSplit puts about frac of each label's items (labels[i] is item

@@ -1,6 +1,7 @@
-package model
+package train
 
 import (
+	"convtag/model"
 	"encoding/json"
 	"fmt"
 	"math"
@@ -25,12 +26,12 @@ func TestTrainMatchesTorch(t *testing.T) {
 	requireTorch(t)
 	for _, opt := range []string{OptAdadelta, OptAdam} {
 		t.Run(opt, func(t *testing.T) {
-			cfg := Config{Dim: 16, Widths: []int{3, 4, 5}, Filters: 20, Buckets: 5}
+			cfg := model.Config{Dim: 16, Widths: []int{3, 4, 5}, Filters: 20, Buckets: 5}
 			var words []string
 			for i := range 30 {
 				words = append(words, fmt.Sprintf("w%d", i))
 			}
-			m, err := New(cfg, token.Settings{}, []string{"a", "b", "c"}, words, 5)
+			m, err := model.New(cfg, token.Settings{}, []string{"a", "b", "c"}, words, 5)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -113,7 +114,7 @@ func TestTrainMatchesTorch(t *testing.T) {
 }
 
 // fileTensors returns m's tensors under their file names (no hidden layer).
-func fileTensors(m *Model) map[string][]float32 {
+func fileTensors(m *model.Model) map[string][]float32 {
 	t := map[string][]float32{"embedding": m.Emb, "output.weight": m.Out.W, "output.bias": m.Out.B}
 	for i, c := range m.Convs {
 		t[fmt.Sprintf("convs.%d.weight", i)], t[fmt.Sprintf("convs.%d.bias", i)] = c.W, c.B

@@ -1,7 +1,8 @@
-package model
+package train
 
 import (
 	"bytes"
+	"convtag/model"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -18,11 +19,11 @@ import (
 )
 
 // tinyNet returns a small random network and a batch over its rows.
-func tinyNet(t *testing.T, hidden int, seed uint64) (*Model, []Example) {
+func tinyNet(t *testing.T, hidden int, seed uint64) (*model.Model, []Example) {
 	t.Helper()
-	cfg := Config{Dim: 5, Widths: []int{1, 2, 3}, Filters: 4, Hidden: hidden, Buckets: 3}
+	cfg := model.Config{Dim: 5, Widths: []int{1, 2, 3}, Filters: 4, Hidden: hidden, Buckets: 3}
 	words := []string{"a", "b", "c", "d", "e", "f"}
-	m, err := New(cfg, token.Settings{}, []string{"x", "y", "z"}, words, seed)
+	m, err := model.New(cfg, token.Settings{}, []string{"x", "y", "z"}, words, seed)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -170,12 +171,12 @@ func TestGradientTorch(t *testing.T) {
 	requireTorch(t)
 	for _, hidden := range []int{0, 7} {
 		t.Run(fmt.Sprintf("hidden=%d", hidden), func(t *testing.T) {
-			cfg := Config{Dim: 16, Widths: []int{3, 4, 5}, Filters: 20, Hidden: hidden, Buckets: 5}
+			cfg := model.Config{Dim: 16, Widths: []int{3, 4, 5}, Filters: 20, Hidden: hidden, Buckets: 5}
 			var words []string
 			for i := range 30 {
 				words = append(words, fmt.Sprintf("w%d", i))
 			}
-			m, err := New(cfg, token.Settings{}, []string{"a", "b", "c"}, words, 5)
+			m, err := model.New(cfg, token.Settings{}, []string{"a", "b", "c"}, words, 5)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -264,7 +265,7 @@ func runTorch(t testing.TB, script string, in any) []byte {
 	if err := os.WriteFile(path, b, 0o644); err != nil {
 		t.Fatal(err)
 	}
-	cmd := exec.Command("/usr/bin/python3", filepath.Join("..", "testdata", script), path)
+	cmd := exec.Command("/usr/bin/python3", filepath.Join("..", "..", "testdata", script), path)
 	var stderr bytes.Buffer
 	cmd.Stderr = &stderr
 	out, err := cmd.Output()
@@ -276,7 +277,7 @@ func runTorch(t testing.TB, script string, in any) []byte {
 
 // toyTask is a learnable property check, not a reference comparison: the
 // label is which of two marker rows the example holds.
-func toyTask(m *Model, n int, seed uint64) []Example {
+func toyTask(m *model.Model, n int, seed uint64) []Example {
 	rng := rand.New(rand.NewPCG(seed, 3))
 	var ex []Example
 	for i := range n {
@@ -290,7 +291,7 @@ func toyTask(m *Model, n int, seed uint64) []Example {
 	return ex
 }
 
-func tensorBits(m *Model) []byte {
+func tensorBits(m *model.Model) []byte {
 	var b bytes.Buffer
 	put := func(s []float32) {
 		for _, v := range s {
@@ -311,13 +312,13 @@ func tensorBits(m *Model) []byte {
 // TestTrainDeterministic trains twice with the same seed and -j and wants
 // identical weights bit for bit, for both optimisers and several -j.
 func TestTrainDeterministic(t *testing.T) {
-	cfg := Config{Dim: 8, Widths: []int{2, 3}, Filters: 6, Buckets: 7}
+	cfg := model.Config{Dim: 8, Widths: []int{2, 3}, Filters: 6, Buckets: 7}
 	words := []string{"p", "q", "r", "s", "t", "u", "v", "w", "x", "y"}
 	for _, opt := range []string{OptAdadelta, OptAdam} {
 		for _, jobs := range []int{1, 2, 3} {
 			var first []byte
 			for run := range 2 {
-				m, err := New(cfg, token.Settings{}, []string{"no", "yes"}, words, 4)
+				m, err := model.New(cfg, token.Settings{}, []string{"no", "yes"}, words, 4)
 				if err != nil {
 					t.Fatal(err)
 				}
@@ -344,11 +345,11 @@ func TestTrainSameOnEveryVectorSet(t *testing.T) {
 		t.Skip("fewer than two vector kernel sets on this CPU or build")
 	}
 	// 40 filters: two panel pairs and one single panel per width.
-	cfg := Config{Dim: 24, Widths: []int{2, 3, 5}, Filters: 40, Buckets: 7}
+	cfg := model.Config{Dim: 24, Widths: []int{2, 3, 5}, Filters: 40, Buckets: 7}
 	words := []string{"p", "q", "r", "s", "t", "u", "v", "w", "x", "y"}
 	var first []byte
 	for _, k := range sets {
-		m, err := New(cfg, token.Settings{}, []string{"no", "yes"}, words, 4)
+		m, err := model.New(cfg, token.Settings{}, []string{"no", "yes"}, words, 4)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -366,11 +367,11 @@ func TestTrainSameOnEveryVectorSet(t *testing.T) {
 // TestTrainLearns checks that training drives a separable toy task to
 // perfect dev accuracy and that early stopping keeps the best epoch.
 func TestTrainLearns(t *testing.T) {
-	cfg := Config{Dim: 8, Widths: []int{2, 3}, Filters: 6, Buckets: 7}
+	cfg := model.Config{Dim: 8, Widths: []int{2, 3}, Filters: 6, Buckets: 7}
 	words := []string{"p", "q", "r", "s", "t", "u", "v", "w", "x", "y"}
 	for _, opt := range []string{OptAdadelta, OptAdam} {
 		t.Run(opt, func(t *testing.T) {
-			m, err := New(cfg, token.Settings{}, []string{"no", "yes"}, words, 4)
+			m, err := model.New(cfg, token.Settings{}, []string{"no", "yes"}, words, 4)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -438,7 +439,7 @@ func TestBalancedWeights(t *testing.T) {
 // TestTrainStop closes Stop after a given mini-batch: training ends before
 // the next one and Train returns ErrStopped; an open Stop changes nothing.
 func TestTrainStop(t *testing.T) {
-	cfg := Config{Dim: 8, Widths: []int{2, 3}, Filters: 6, Buckets: 7}
+	cfg := model.Config{Dim: 8, Widths: []int{2, 3}, Filters: 6, Buckets: 7}
 	words := []string{"p", "q", "r", "s", "t", "u", "v", "w", "x", "y"}
 	for _, tc := range []struct {
 		name      string
@@ -450,7 +451,7 @@ func TestTrainStop(t *testing.T) {
 		{"never", 0, nil},
 	} {
 		t.Run(tc.name, func(t *testing.T) {
-			m, err := New(cfg, token.Settings{}, []string{"no", "yes"}, words, 4)
+			m, err := model.New(cfg, token.Settings{}, []string{"no", "yes"}, words, 4)
 			if err != nil {
 				t.Fatal(err)
 			}

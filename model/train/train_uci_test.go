@@ -1,7 +1,8 @@
-package model
+package train
 
 import (
 	"bytes"
+	"convtag/model"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -220,8 +221,8 @@ func uciFolds(t *testing.T, texts []string, labels []int, folds int) []uciFold {
 			nbDocs = append(nbDocs, tokens[i])
 			nbY = append(nbY, labels[i])
 		}
-		cfg := Config{Dim: r.Dim, Widths: r.Widths, Filters: r.Filters, Buckets: r.Buckets}
-		m, err := New(cfg, token.Settings{}, []string{"negative", "positive"}, BuildWords(counts, r.MinCount, 0), 1)
+		cfg := model.Config{Dim: r.Dim, Widths: r.Widths, Filters: r.Filters, Buckets: r.Buckets}
+		m, err := model.New(cfg, token.Settings{}, []string{"negative", "positive"}, BuildWords(counts, r.MinCount, 0), 1)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -264,13 +265,13 @@ func uciFolds(t *testing.T, texts []string, labels []int, folds int) []uciFold {
 // accuracy and the epochs run.
 func uciTrainGo(t *testing.T, f uciFold, k, jobs int) (float64, int) {
 	r := uciRecipe
-	cfg := Config{Dim: r.Dim, Widths: r.Widths, Filters: r.Filters, Buckets: r.Buckets}
+	cfg := model.Config{Dim: r.Dim, Widths: r.Widths, Filters: r.Filters, Buckets: r.Buckets}
 	// The words only fix the row count here; the examples already hold rows.
 	words := make([]string, f.Rows-1-r.Buckets)
 	for i := range words {
 		words[i] = strconv.Itoa(i)
 	}
-	m, err := New(cfg, token.Settings{}, []string{"negative", "positive"}, words, r.Seed+uint64(k))
+	m, err := model.New(cfg, token.Settings{}, []string{"negative", "positive"}, words, r.Seed+uint64(k))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -370,7 +371,7 @@ func startTorchPool(t *testing.T, folds []uciFold, procs int) *torchPool {
 		if err := os.WriteFile(path, b, 0o644); err != nil {
 			t.Fatal(err)
 		}
-		cmd := exec.Command("/usr/bin/python3", filepath.Join("..", "testdata", "torch_train.py"), path)
+		cmd := exec.Command("/usr/bin/python3", filepath.Join("..", "..", "testdata", "torch_train.py"), path)
 		var so, se bytes.Buffer
 		cmd.Stdout, cmd.Stderr = &so, &se
 		if err := cmd.Start(); err != nil {

@@ -1,6 +1,7 @@
-package model
+package train
 
 import (
+	"convtag/model"
 	"math"
 	"math/rand/v2"
 	"slices"
@@ -37,7 +38,7 @@ type netParams struct {
 	kern             *kernel.Set // the training kernels
 }
 
-func paramsFrom(m *Model) *netParams {
+func paramsFrom(m *model.Model) *netParams {
 	cfg := m.Config
 	d, f := cfg.Dim, cfg.Filters
 	p := &netParams{
@@ -126,7 +127,7 @@ func (p *netParams) snapshot(dst *netParams) *netParams {
 }
 
 // writeTo stores the weights into m in the file layout.
-func (p *netParams) writeTo(m *Model) {
+func (p *netParams) writeTo(m *model.Model) {
 	d := p.d
 	m.Emb = slices.Clone(p.emb)
 	for i, w := range p.widths {

@@ -1,4 +1,4 @@
-package main
+package train
 
 import (
 	"encoding/base64"
@@ -10,13 +10,13 @@ import (
 	"convtag/model/token"
 )
 
-// metaSeen is the model-file metadata key that records which texts
+// MetaSeen is the model-file metadata key that records which texts
 // training used: 32-bit hashes of the training and dev records' tokens, so
 // that eval can say when it is scoring records the model was fitted or
 // stopped on.
-const metaSeen = "seen_texts"
+const MetaSeen = "seen_texts"
 
-// seenTexts is metaSeen's JSON: sorted little-endian uint32 hashes, base64.
+// seenTexts is MetaSeen's JSON: sorted little-endian uint32 hashes, base64.
 type seenTexts struct {
 	Hash  string `json:"hash"`
 	Train string `json:"train"`
@@ -61,8 +61,8 @@ func decodeHashes(s string) []uint32 {
 	return hs
 }
 
-// seenMeta is metaSeen's value for the training and dev texts.
-func seenMeta(train, dev []string) string {
+// SeenMeta is MetaSeen's value for the training and dev texts.
+func SeenMeta(train, dev []string) string {
 	tok := token.New(token.Settings{})
 	var ts token.Tokens
 	hash := func(texts []string) string {
@@ -76,10 +76,10 @@ func seenMeta(train, dev []string) string {
 	return string(b)
 }
 
-// countSeen counts how many of texts the model's training saw among its
-// training records and its dev records; ok is false when the model file
-// does not say.
-func countSeen(meta string, tok *token.Tokenizer, texts []string) (inTrain, inDev int, ok bool) {
+// CountSeen counts how many of texts the model's training saw among its
+// training records and its dev records (meta is the model's MetaSeen
+// value); ok is false when the model file does not say.
+func CountSeen(meta string, tok *token.Tokenizer, texts []string) (inTrain, inDev int, ok bool) {
 	var s seenTexts
 	if json.Unmarshal([]byte(meta), &s) != nil || s.Hash != seenHashName {
 		return 0, 0, false

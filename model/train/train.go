@@ -1,6 +1,7 @@
-package model
+package train
 
 import (
+	"convtag/model"
 	"errors"
 	"fmt"
 	"math"
@@ -181,7 +182,7 @@ func (o *TrainOptions) defaults() {
 // returns) and no folded table; Train writes them in place and is not safe
 // to run concurrently with any other use of m. The same m, data, options
 // and Jobs give bit-identical weights.
-func Train(m *Model, train, dev []Example, opt TrainOptions) (*TrainResult, error) {
+func Train(m *model.Model, train, dev []Example, opt TrainOptions) (*TrainResult, error) {
 	opt.defaults()
 	if len(train) == 0 {
 		return nil, ErrNoExamples
@@ -238,7 +239,7 @@ func Train(m *Model, train, dev []Example, opt TrainOptions) (*TrainResult, erro
 	return res, nil
 }
 
-func checkTrainExamples(m *Model, ex []Example) error {
+func checkTrainExamples(m *model.Model, ex []Example) error {
 	rows := int32(m.Rows())
 	for i, e := range ex {
 		if e.Label < 0 || e.Label >= len(m.Labels) {
@@ -256,7 +257,7 @@ func checkTrainExamples(m *Model, ex []Example) error {
 // trainer holds the working parameters, the optimiser state and the
 // workers' scratch for one run of Train.
 type trainer struct {
-	m    *Model
+	m    *model.Model
 	opt  TrainOptions
 	p    *netParams
 	g    *netGrads // the batch's summed gradient
@@ -269,7 +270,7 @@ type trainer struct {
 	wg   sync.WaitGroup
 }
 
-func newTrainer(m *Model, opt TrainOptions) *trainer {
+func newTrainer(m *model.Model, opt TrainOptions) *trainer {
 	t := &trainer{m: m, opt: opt, p: paramsFrom(m)}
 	t.g = newGrads(t.p)
 	t.cw = make([]float32, len(m.Labels))

@@ -1,7 +1,8 @@
-package model
+package train
 
 import (
 	"bytes"
+	"convtag/model"
 	"encoding/binary"
 	"encoding/json"
 	"fmt"
@@ -16,7 +17,7 @@ import (
 
 // benchData returns the UCI sentences as examples for a model of dimension
 // d with 3 x 100 filters, split 80/20 (stratified, seed 1).
-func benchData(b *testing.B, d int) (*Model, []Example, []Example) {
+func benchData(b *testing.B, d int) (*model.Model, []Example, []Example) {
 	b.Helper()
 	dir, err := uci.CacheDir()
 	if err != nil {
@@ -36,8 +37,8 @@ func benchData(b *testing.B, d int) (*Model, []Example, []Example) {
 			labels[i] = 1
 		}
 	}
-	cfg := Config{Dim: d, Widths: []int{3, 4, 5}, Filters: 100, Buckets: 1000}
-	m, err := New(cfg, token.Settings{}, []string{"negative", "positive"}, BuildWords(counts, 2, 0), 1)
+	cfg := model.Config{Dim: d, Widths: []int{3, 4, 5}, Filters: 100, Buckets: 1000}
+	m, err := model.New(cfg, token.Settings{}, []string{"negative", "positive"}, BuildWords(counts, 2, 0), 1)
 	if err != nil {
 		b.Fatal(err)
 	}
@@ -147,7 +148,7 @@ func BenchmarkTrainVsTorch(b *testing.B) {
 }
 
 // setTensorBits restores the weights tensorBits(m) returned.
-func setTensorBits(m *Model, bits []byte) {
+func setTensorBits(m *model.Model, bits []byte) {
 	get := func(s []float32) {
 		for i := range s {
 			s[i] = math.Float32frombits(binary.LittleEndian.Uint32(bits))
