@@ -6,7 +6,6 @@ import (
 	"fmt"
 	"io"
 	"os"
-	"path/filepath"
 	"runtime"
 	"strings"
 	"time"
@@ -265,27 +264,15 @@ func writeVectors(a *app, path string, s *vectors.Set, format vectors.Format) (e
 	if path == "-" {
 		return s.Write(a.stdout, format)
 	}
-	tmp, err := createTemp(filepath.Dir(path), "."+filepath.Base(path)+".", ".tmp")
+	out, err := stream.CreateOutputFile(path)
 	if err != nil {
 		return err
 	}
-	defer func() {
-		if err != nil {
-			tmp.Close()
-			os.Remove(tmp.Name())
-		}
-	}()
-	err = s.Write(tmp, format)
-	if err == nil {
-		err = tmp.Sync()
+	if err := s.Write(out, format); err != nil {
+		out.Discard()
+		return err
 	}
-	if cerr := tmp.Close(); err == nil {
-		err = cerr
-	}
-	if err == nil {
-		err = os.Rename(tmp.Name(), path)
-	}
-	return err
+	return out.Commit()
 }
 
 // embedProgress returns the progress reporter: a line rewritten in place

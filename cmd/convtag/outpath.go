@@ -2,8 +2,6 @@ package main
 
 import (
 	"context"
-	"crypto/rand"
-	"encoding/hex"
 	"errors"
 	"fmt"
 	"io/fs"
@@ -11,6 +9,8 @@ import (
 	"os/signal"
 	"path/filepath"
 	"syscall"
+
+	"convtag/stream"
 )
 
 // errInterrupted is what a command returns after SIGINT or SIGTERM; it
@@ -80,12 +80,16 @@ func checkOutput(cmd, path string, inputs ...string) error {
 	} else if !dst.IsDir() {
 		return withCode(exitFailure, fmt.Errorf("%s: -o %s: %s is not a directory", cmd, path, dir))
 	}
-	f, err := createTemp(dir, "."+filepath.Base(path)+".", ".tmp")
+	// The same temporary file the output will be written to, made and
+	// dropped: proof that it can be.
+	f, err := stream.CreateOutputFile(path)
 	if err != nil {
+		if u := errors.Unwrap(err); u != nil {
+			err = u
+		}
 		return withCode(exitFailure, fmt.Errorf("%s: -o %s: cannot create a file in %s: %w", cmd, path, dir, pathErr(err)))
 	}
-	f.Close()
-	os.Remove(f.Name())
+	f.Discard()
 	return nil
 }
 
@@ -99,18 +103,3 @@ func pathErr(err error) error {
 	return err
 }
 
-// createTemp creates a new file prefix+random+suffix in dir for writing,
-// with mode 0666 less the umask like any other output (os.CreateTemp gives
-// 0600). model.Save has its own copy: model does not share file helpers.
-func createTemp(dir, prefix, suffix string) (*os.File, error) {
-	for range 100 {
-		var r [8]byte
-		rand.Read(r[:])
-		name := filepath.Join(dir, prefix+hex.EncodeToString(r[:])+suffix)
-		f, err := os.OpenFile(name, os.O_CREATE|os.O_EXCL|os.O_WRONLY, 0o666)
-		if !errors.Is(err, fs.ErrExist) {
-			return f, err
-		}
-	}
-	return nil, fmt.Errorf("create a temporary file in %s: too many name collisions", dir)
-}

@@ -2,7 +2,6 @@ package main
 
 import (
 	"fmt"
-	"io"
 	"os"
 	"sync"
 	"time"
@@ -18,7 +17,6 @@ import (
 // records written and records per second.
 type tagProgress struct {
 	mu    sync.Mutex
-	w     io.Writer
 	bar   *progressbar.ProgressBar
 	total int64 // -1 when a size is unknown (a pipe)
 	start time.Time
@@ -47,7 +45,7 @@ func newProgress(a *app, mode string, inputs []string) *tagProgress {
 		progressbar.OptionThrottle(0), // tagProgress throttles; the last frame must not be dropped
 		progressbar.OptionOnCompletion(func() { fmt.Fprintln(a.stderr) }),
 	)
-	return &tagProgress{w: a.stderr, bar: bar, total: total, start: time.Now()}
+	return &tagProgress{bar: bar, total: total, start: time.Now()}
 }
 
 // inputSize is the summed size of the inputs, or -1 when one of them is
