@@ -102,4 +102,3 @@ func pathErr(err error) error {
 	}
 	return err
 }
-
