@@ -82,8 +82,10 @@ func TestKnownShare(t *testing.T) {
 	if !strings.Contains(errs, "convtag: warning: the model knows") {
 		t.Errorf("no warning for text unlike the training data:\n%s", errs)
 	}
-	if code, _, errs := runCmd(t, "", "tag", "-m", m, "--format", "text", "--known-key", "k"); code != exitUsage {
-		t.Errorf("--known-key with TSV text output: exit %d, %s", code, errs)
+	for _, f := range []string{"text", "csv", "tsv"} {
+		if code, _, errs := runCmd(t, "text\nhello\n", "tag", "-m", m, "--format", f, "--known-key", "k"); code != exitUsage {
+			t.Errorf("--known-key with --format %s: exit %d, %s", f, code, errs)
+		}
 	}
 }
 

@@ -87,7 +87,7 @@ func tagColumns(o *stream.Options, textKeys, textColumns []string, why int) erro
 	for _, c := range []struct {
 		flag string
 		on   bool
-	}{{"--scores", o.Scores}, {"--top", o.Top > 0}, {"--why", why > 0}} {
+	}{{"--scores", o.Scores}, {"--top", o.Top > 0}, {"--why", why > 0}, {"--known-key", o.KnownKey != ""}} {
 		if c.on {
 			return usageErr("convtag tag --format jsonl "+c.flag+" ...", "%s: CSV and TSV output has no place for it", c.flag)
 		}
