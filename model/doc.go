@@ -12,7 +12,8 @@
 package model
 
 // The model file is a safetensors container (8-byte little-endian header
-// length, JSON header, one contiguous buffer). Tensors, with
+// length, JSON header, one contiguous buffer), read and written by package
+// model/safetensors; this package adds the schema. Tensors, with
 // rows = 1 + V + B (padding, words, buckets):
 //
 //	embedding          F32 [rows, d]
