@@ -242,7 +242,7 @@ func (w *worker) jsonRecord(b *block, line, term []byte, r *found) {
 	}
 	w.setFields(tag)
 	b.out = append(b.out, line[:r.lead]...)
-	b.out = w.sp.splice(b.out, obj, w.fields)
+	b.out = w.sp.splice(b.out, obj, w.find.scan.members, w.fields)
 	b.out = append(b.out, term...)
 	b.n.written++
 }
