@@ -149,6 +149,9 @@ func (f *evalFlags) check(cmd *cobra.Command, args []string) error {
 	case f.baselineTrain != "" || f.plots != "" || f.target != 0:
 		return usageErr("convtag eval --folds 10 FILE", "eval: --baseline-train, --plots and --target-precision do not apply with --folds")
 	}
+	if err := f.train.r.Check(); err != nil {
+		return usageErr("convtag eval --help (the recipe's flags)", "eval: %w", err)
+	}
 	t := f.train
 	t.output, t.format = "-", stream.LabelledJSONL
 	if err := t.check(args); err != nil {

@@ -274,6 +274,10 @@ func TestEvalErrors(t *testing.T) {
 		{"training flag without folds", []string{"eval", "-m", evalModel, "--epochs", "3", demoDev}, exitUsage, "--epochs only apply with --folds"},
 		{"folds with model", []string{"eval", "--folds", "3", "-m", evalModel, demoDev}, exitUsage, "leave out -m"},
 		{"one fold", []string{"eval", "--folds", "1", demoDev}, exitUsage, "at least 2"},
+		// Recipe.Check runs before any record is read: the missing file is
+		// never opened.
+		{"folds, bad recipe", []string{"eval", "--folds", "3", "--epochs", "0", "no/such.jsonl"}, exitUsage, "eval: model: bad recipe: --epochs 0"},
+		{"folds, bad shape", []string{"eval", "--folds", "3", "--widths", "0", "no/such.jsonl"}, exitUsage, "network shape"},
 		{"missing file", []string{"eval", "-m", evalModel, "no/such.jsonl"}, exitFailure, "no/such.jsonl"},
 		{"no known labels", []string{"eval", "-m", evalModel, "--format", "label-tab-text", "testdata/eval/unknown.tsv"}, exitFailure, "no record has a label"},
 		{"bad model", []string{"eval", "-m", demoDev, demoDev}, exitUsage, "dev.jsonl"},

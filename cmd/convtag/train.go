@@ -106,6 +106,7 @@ finish, and the run ends as usual.
 }
 
 func (f *trainFlags) check(args []string) error {
+	recipeErr := f.r.Check()
 	switch {
 	case f.output == "":
 		return usageErr("convtag train -o MODEL FILE...", "train: no output file (-o)")
@@ -115,14 +116,8 @@ func (f *trainFlags) check(args []string) error {
 		return f.labelledFlags.check("train")
 	case f.dev == "" && !(f.r.DevFraction > 0 && f.r.DevFraction < 1):
 		return usageErr("--dev-fraction 0.1, or --dev FILE", "train: --dev-fraction %g is not between 0 and 1", f.r.DevFraction)
-	case f.r.Epochs < 1 || f.r.Batch < 1 || f.r.Patience < 0 || f.r.Jobs < 0:
-		return usageErr("", "train: --epochs and --batch must be at least 1, --patience and --jobs at least 0")
-	case f.r.MinSeen < 1 || f.r.MaxWords < 0:
-		return usageErr("", "train: --min-seen must be at least 1 and --max-words at least 0")
-	case f.r.Optimizer != train.OptAdadelta && f.r.Optimizer != train.OptAdam:
-		return usageErr("--optimizer adadelta or --optimizer adam", "train: unknown --optimizer %q", f.r.Optimizer)
-	case f.r.ClassWeights != train.ClassWeightsNone && f.r.ClassWeights != train.ClassWeightsBalanced:
-		return usageErr("--class-weights none or --class-weights balanced", "train: unknown --class-weights %q", f.r.ClassWeights)
+	case recipeErr != nil:
+		return usageErr("convtag train --help (the recipe's flags)", "train: %w", recipeErr)
 	case f.r.Freeze && f.vectors == "":
 		return usageErr("--vectors FILE --freeze-vectors", "train: --freeze-vectors without --vectors")
 	}
@@ -182,8 +177,9 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 		}
 		r.Dim, r.VectorsName = r.Vectors.Dim, filepath.Base(f.vectors)
 	}
-	if err := r.Config().Validate(); err != nil {
-		return usageErr("", "train: %w", err)
+	// The vectors may have changed the embedding size.
+	if err := r.Check(); err != nil {
+		return usageErr("convtag train --help (the recipe's flags)", "train: %w", err)
 	}
 	var bar *progressbar.ProgressBar
 	prog := train.Progress{Warn: warn, Info: say,

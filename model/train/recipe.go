@@ -125,7 +125,7 @@ func (p Progress) info(format string, v ...any) {
 type FewLabelsError struct{ Found int }
 
 func (e *FewLabelsError) Error() string {
-	return fmt.Sprintf("need at least 2 different labels, found %d", e.Found)
+	return fmt.Sprintf("model: need at least 2 different labels, found %d", e.Found)
 }
 
 // Summary is the training record stored under the model's "training"
@@ -213,8 +213,8 @@ type tokenized struct {
 // table; its training metadata is not set: add Files and DevFiles to the
 // summary and Store it. Cancelling ctx stops training with ErrStopped.
 func (r Recipe) Fit(ctx context.Context, trainRecs, dev []Record, p Progress) (*model.Model, *Summary, error) {
-	if r.ClassWeights != "" && r.ClassWeights != ClassWeightsNone && r.ClassWeights != ClassWeightsBalanced {
-		return nil, nil, fmt.Errorf("unknown class weights %q (want %s or %s)", r.ClassWeights, ClassWeightsNone, ClassWeightsBalanced)
+	if err := r.Check(); err != nil {
+		return nil, nil, err
 	}
 	tok := token.New(token.Settings{})
 	var ts token.Tokens
@@ -267,7 +267,7 @@ func (r Recipe) Fit(ctx context.Context, trainRecs, dev []Record, p Progress) (*
 	}
 	for _, t := range tr {
 		if _, ok := li[t.label]; !ok {
-			return nil, nil, fmt.Errorf("training record of label %q, not one of the recipe's labels", t.label)
+			return nil, nil, fmt.Errorf("model: training record of label %q, not one of the recipe's labels", t.label)
 		}
 	}
 	keptDev := dv[:0:0]
@@ -293,7 +293,7 @@ func (r Recipe) Fit(ctx context.Context, trainRecs, dev []Record, p Progress) (*
 	}
 	words := BuildWords(counts, r.MinSeen, r.MaxWords)
 	if r.Vectors != nil && r.Vectors.Dim != r.Dim {
-		return nil, nil, fmt.Errorf("embedding size %d but %s has %d-dimensional vectors", r.Dim, r.VectorsName, r.Vectors.Dim)
+		return nil, nil, fmt.Errorf("model: embedding size %d but %s has %d-dimensional vectors", r.Dim, r.VectorsName, r.Vectors.Dim)
 	}
 	m, err := model.New(r.Config(), token.Settings{}, labels, words, r.Seed)
 	if err != nil {
@@ -365,7 +365,7 @@ func (r Recipe) Fit(ctx context.Context, trainRecs, dev []Record, p Progress) (*
 	}
 	base, err := nb.Fit(docs, ys, len(labels), 1)
 	if err != nil {
-		return nil, nil, fmt.Errorf("baseline: %w", err)
+		return nil, nil, fmt.Errorf("model: baseline: %w", err)
 	}
 	gold, pred := make([]int, len(dv)), make([]int, len(dv))
 	for i, t := range dv {

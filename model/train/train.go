@@ -243,11 +243,11 @@ func checkTrainExamples(m *model.Model, ex []Example) error {
 	rows := int32(m.Rows())
 	for i, e := range ex {
 		if e.Label < 0 || e.Label >= len(m.Labels) {
-			return fmt.Errorf("example %d: %w: %d", i, ErrBadLabel, e.Label)
+			return fmt.Errorf("%w: example %d has label %d", ErrBadLabel, i, e.Label)
 		}
 		for _, r := range e.Rows {
 			if r < 0 || r >= rows {
-				return fmt.Errorf("example %d: %w: %d", i, ErrBadRow, r)
+				return fmt.Errorf("%w: example %d has row %d", ErrBadRow, i, r)
 			}
 		}
 	}
