@@ -31,11 +31,6 @@ const (
 // 4,096-byte buffer and restarts a program whose reply is longer.
 const maxReply = 1000
 
-// maxPending is how much of an open transaction's input is held before
-// it is tagged and written ahead of the commit mark, so memory stays
-// bounded whatever rsyslog's batch size.
-const maxPending = 4 << 20
-
 // ConfirmOptions are the protocol settings of Confirm. The zero value
 // uses omprog's default marks and does not sync.
 type ConfirmOptions struct {
@@ -45,7 +40,8 @@ type ConfirmOptions struct {
 	// never renders one.
 	BeginMark, CommitMark string
 	// Fsync syncs the output file (and a Rejects writer that has a Sync
-	// method) to stable storage before each reply that confirms records.
+	// method) to stable storage before each reply that commits records:
+	// per message outside a transaction, once per transaction inside one.
 	Fsync bool
 	// Note, if set, is told of a repair made on opening the output: the
 	// cut last line a killed run left (never confirmed, so sent again) is
@@ -204,8 +200,8 @@ func lastNewline(path string, size int64) (int64, error) {
 	return 0, nil
 }
 
-// write appends p whole and, with fsync, syncs it. On an error it cuts the
-// file back to where p began and closes it.
+// write appends p whole. On an error it cuts the file back to where p
+// began and closes it.
 func (o *confirmOut) write(p []byte) error {
 	if err := o.open(); err != nil {
 		return err
@@ -228,10 +224,17 @@ func (o *confirmOut) write(p []byte) error {
 	if _, err := o.f.Write(p); err != nil {
 		return o.fail(st.Size(), err)
 	}
-	if o.fsync {
-		if err := o.f.Sync(); err != nil {
-			return o.fail(st.Size(), err)
-		}
+	return nil
+}
+
+// sync syncs what was written, with fsync; on an error the file is closed
+// (and opened again by the next write).
+func (o *confirmOut) sync() error {
+	if !o.fsync || o.f == nil {
+		return nil
+	}
+	if err := o.f.Sync(); err != nil {
+		return o.fail(-1, fmt.Errorf("sync %s: %w", o.path, err))
 	}
 	return nil
 }
@@ -239,8 +242,8 @@ func (o *confirmOut) write(p []byte) error {
 func (o *confirmOut) fail(size int64, err error) error {
 	if size >= 0 {
 		o.f.Truncate(size) // best effort: a later open repairs a cut line too
+		unlockFile(o.f)
 	}
-	unlockFile(o.f)
 	o.f.Close()
 	o.f = nil
 	return err
@@ -293,23 +296,28 @@ func replyLine(err error) string {
 //   - outside a transaction, "OK" for each message once its record is
 //     written (and synced with Fsync);
 //   - with useTransactions, "OK" for the begin mark, "DEFER_COMMIT" for
-//     each message (taken, not yet written), and "OK" for the commit mark
-//     once the whole transaction is written (and synced);
-//   - an error line instead of "OK" when a write fails: the file is cut
+//     each message once its record is written, and "OK" for the commit
+//     mark once the transaction's records are synced (with Fsync);
+//   - an error line instead when a write or sync fails: the file is cut
 //     back to before the failed write, and rsyslog sends the message or
 //     the transaction again.
 //
-// A begin mark inside an open transaction drops what it held: rsyslog
-// begins again only to resend what it has not seen committed. At the end
-// of the input, or when ctx is cancelled, what is held is written without
-// a reply (a record written twice rather than none). Problem records are
-// written (or go to opts.Rejects) and confirmed, and passed to OnError
-// with their line of stdin. Only uncompressed JSON Lines or text lines
-// are supported; opts.Compress must be CompressNone or CompressAuto with
-// a name without a compression suffix.
+// Each record is written before its reply even in a transaction, where
+// the protocol would allow holding it until the commit: rsyslog (to
+// 8.2302 at least, its issue 2420) retries only the failed message of a
+// transaction cut short, not the ones it was told were deferred, so a
+// deferred record not yet written would be lost when convtag is killed
+// mid-transaction. A transaction still saves the sync per message.
+//
+// Problem records are written (or go to opts.Rejects) and confirmed, and
+// passed to OnError with their line of stdin. Only uncompressed JSON
+// Lines or text lines are supported; opts.Compress must be CompressNone,
+// or CompressAuto with a name without a compression suffix.
 //
 // Confirm returns nil at the end of the input; a write error is answered
-// and the run goes on, and Confirm returns it at the end.
+// and the run goes on, and Confirm returns it at the end. When ctx is
+// cancelled it returns context.Cause(ctx) once the message in hand is
+// written.
 func Confirm(ctx context.Context, opts Options, co ConfirmOptions, stdin io.Reader, replies io.Writer) (Stats, error) {
 	stats := Stats{Tags: map[string]int64{}}
 	if opts.Output == "" || opts.Output == "-" {
@@ -329,51 +337,51 @@ func Confirm(ctx context.Context, opts Options, co ConfirmOptions, stdin io.Read
 	reply := func(s string) error {
 		rw.WriteString(s)
 		rw.WriteByte('\n')
-		return rw.Flush()
+		if err := rw.Flush(); err != nil {
+			return fmt.Errorf("reply: %w", err)
+		}
+		return nil
 	}
 	var (
-		tagger       = opts.Tagger
-		held         *heldTagger
-		gen          uint64
-		started      bool
-		ts           *taggerState
-		sw           = cfg.sw
-		out          = &confirmOut{path: opts.Output, fsync: co.Fsync, note: co.Note}
-		rejSync, _   = opts.Rejects.(interface{ Sync() error })
-		tot          counts
-		werr         error
-		pendingLines []int64 // stdin line of each pending message
+		held       *heldTagger
+		gen        uint64
+		started    bool
+		ts         *taggerState
+		sw         = cfg.sw
+		out        = &confirmOut{path: opts.Output, fsync: co.Fsync, note: co.Note}
+		rejSync, _ = opts.Rejects.(interface{ Sync() error })
+		tot        counts
+		werr       error
 	)
 	defer out.close()
-	pick := func() {
+	// pick takes the Switch's current Tagger, and reopens the output when
+	// the Switch was Set since the last record (rotation, reload).
+	pick := func() error {
 		if sw == nil {
 			if ts == nil {
-				ts = newTaggerState(tagger, cfg)
+				ts = newTaggerState(opts.Tagger, cfg)
 			}
-			return
+			return nil
 		}
 		h, g := sw.acquire()
-		if h != nil && h != held {
+		switch {
+		case h != nil && h != held:
 			if held != nil {
 				held.release()
 			}
 			held, ts = h, newTaggerState(h.t, cfg)
-		} else {
-			if h != nil {
-				h.release()
-			}
-			if ts == nil {
-				ts = newTaggerState(tagger, cfg)
-			}
+		case h != nil:
+			h.release()
 		}
-		if started && g != gen {
-			// Set since the last write: a rotation or reload asks for a
-			// reopen.
-			if err := out.reopen(); err != nil && werr == nil {
-				werr = err
-			}
+		if ts == nil {
+			ts = newTaggerState(opts.Tagger, cfg)
 		}
+		reopen := started && g != gen
 		gen, started = g, true
+		if reopen {
+			return out.reopen()
+		}
+		return nil
 	}
 	defer func() {
 		if held != nil {
@@ -389,26 +397,24 @@ func Confirm(ctx context.Context, opts Options, co ConfirmOptions, stdin io.Read
 		return stats, err
 	}
 	if err := reply(ReplyOK); err != nil {
-		return stats, fmt.Errorf("reply: %w", err)
+		return stats, err
 	}
 
 	defer panicOnFault()()
 	wk := newWorker(cfg)
 	b := &block{lastNL: -1}
-	// flushPending tags and writes what is held; it returns the write error.
-	flushPending := func() error {
-		if len(b.in) == 0 {
-			return nil
-		}
+	// record tags and writes one message; it returns the write error.
+	record := func(msg []byte, line int64) error {
+		defer b.reset()
+		b.in = append(b.in, msg...)
 		if b.in[len(b.in)-1] != '\n' {
 			b.in = append(b.in, '\n')
 		}
-		pick()
+		if err := pick(); err != nil {
+			return err
+		}
 		b.tagger = ts
 		wk.processSafe(b)
-		lines := pendingLines
-		pendingLines = pendingLines[:0]
-		defer b.reset()
 		if b.fault != nil {
 			return b.fault
 		}
@@ -419,11 +425,6 @@ func Confirm(ctx context.Context, opts Options, co ConfirmOptions, stdin io.Read
 			if _, err := opts.Rejects.Write(b.rej); err != nil {
 				return fmt.Errorf("write rejects: %w", err)
 			}
-			if co.Fsync && rejSync != nil {
-				if err := rejSync.Sync(); err != nil {
-					return fmt.Errorf("sync rejects: %w", err)
-				}
-			}
 		}
 		tot.add(&b.n)
 		for i, n := range b.tags {
@@ -432,16 +433,35 @@ func Confirm(ctx context.Context, opts Options, co ConfirmOptions, stdin io.Read
 			}
 		}
 		for _, e := range b.errs {
-			if opts.OnError != nil && int(e.line) < len(lines) {
-				opts.OnError(&RecordError{File: "stdin", Line: lines[e.line], Err: e.err})
+			if opts.OnError != nil {
+				opts.OnError(&RecordError{File: "stdin", Line: line, Err: e.err})
 			}
 		}
-		stats.Bytes += int64(len(b.in))
+		stats.Bytes += int64(len(msg))
 		return nil
 	}
-	drop := func() {
-		b.reset()
-		pendingLines = pendingLines[:0]
+	sync := func() error {
+		if err := out.sync(); err != nil {
+			return err
+		}
+		if co.Fsync && rejSync != nil {
+			if err := rejSync.Sync(); err != nil {
+				return fmt.Errorf("sync rejects: %w", err)
+			}
+		}
+		return nil
+	}
+	answer := func(err error, ok string) error {
+		if err == nil {
+			return reply(ok)
+		}
+		if werr == nil {
+			werr = err
+		}
+		if opts.OnError != nil {
+			opts.OnError(err)
+		}
+		return reply(replyLine(err))
 	}
 
 	type event struct {
@@ -474,24 +494,18 @@ func Confirm(ctx context.Context, opts Options, co ConfirmOptions, stdin io.Read
 	}()
 
 	inTx := false
-	var txFailed error // a write ahead of the commit failed
+	var txErr error // a record of the open transaction that failed
 	var rerr error
-	failed := func(err error) error {
-		if werr == nil {
-			werr = err
-		}
-		if opts.OnError != nil {
-			opts.OnError(err)
-		}
-		return reply(replyLine(err))
-	}
-loop:
-	for {
+	for rerr == nil {
 		var ev event
+		cancelled := false
 		select {
 		case ev = <-events:
 		case <-ctx.Done():
-			break loop
+			cancelled = true
+		}
+		if cancelled {
+			break
 		}
 		if ev.err != nil {
 			if ev.err != io.EOF {
@@ -499,63 +513,32 @@ loop:
 			}
 			break
 		}
-		var r string
 		switch ev.kind {
 		case protoBegin:
-			drop()
-			inTx, txFailed = true, nil
-			r = ReplyOK
+			inTx, txErr = true, nil
+			rerr = reply(ReplyOK)
 		case protoCommit:
-			inTx = false
-			err := txFailed
+			err := txErr
 			if err == nil {
-				err = flushPending()
+				err = sync()
 			}
-			txFailed = nil
-			if err != nil {
-				r = ""
-				if rerr = failed(err); rerr != nil {
-					break loop
-				}
-			} else {
-				r = ReplyOK
-			}
+			inTx, txErr = false, nil
+			rerr = answer(err, ReplyOK)
 		default:
-			b.in = append(b.in, ev.line...)
-			pendingLines = append(pendingLines, pr.line)
-			switch {
-			case inTx && len(b.in) < maxPending:
-				r = ReplyDeferCommit
-			case inTx:
-				r = ReplyDeferCommit
-				if err := flushPending(); err != nil {
-					// Too late to refuse this one alone: the commit
-					// fails instead, and rsyslog sends it all again.
-					drop()
-					txFailed = err
+			err := record(ev.line, pr.line)
+			if inTx {
+				if err != nil {
+					txErr = err
 				}
-			default:
-				if err := flushPending(); err != nil {
-					r = ""
-					if rerr = failed(err); rerr != nil {
-						break loop
-					}
-				} else {
-					r = ReplyOK
-				}
-			}
-		}
-		taken <- struct{}{}
-		if r != "" {
-			if err := reply(r); err != nil {
-				rerr = fmt.Errorf("reply: %w", err)
+				rerr = answer(err, ReplyDeferCommit)
 				break
 			}
+			if err == nil {
+				err = sync()
+			}
+			rerr = answer(err, ReplyOK)
 		}
-	}
-	// Written without a reply: at most a duplicate, never a loss.
-	if err := flushPending(); err != nil && werr == nil {
-		werr = err
+		taken <- struct{}{}
 	}
 	if err := out.close(); err != nil && werr == nil {
 		werr = fmt.Errorf("close output %s: %w", opts.Output, err)

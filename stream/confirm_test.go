@@ -16,8 +16,9 @@ import (
 // The exchanges follow the sequences in rsyslog's
 // plugins/external/INTERFACE.md ("Example of exchanged messages" and "How
 // to provide feedback when using transactions"): each step sends one line
-// and reads one reply, and the file must already hold (or not yet hold)
-// the records at the moment the reply is read.
+// and reads one reply, and the file must already hold the records at the
+// moment the reply is read (also a DEFER_COMMIT's: see Confirm on
+// rsyslog's issue 2420).
 func TestConfirmExchange(t *testing.T) {
 	type step struct {
 		send  string // a line, without its '\n'
@@ -36,32 +37,32 @@ func TestConfirmExchange(t *testing.T) {
 		}, 3},
 		{"transactions", []step{
 			{"BEGIN TRANSACTION", "OK", 0},
-			{`{"text":"ferry late"}`, "DEFER_COMMIT", 0},
-			{`{"text":"fog on the quay"}`, "DEFER_COMMIT", 0},
+			{`{"text":"ferry late"}`, "DEFER_COMMIT", 1},
+			{`{"text":"fog on the quay"}`, "DEFER_COMMIT", 2},
 			{"COMMIT TRANSACTION", "OK", 2},
 			{"BEGIN TRANSACTION", "OK", 2},
-			{`{"text":"wind at Holm"}`, "DEFER_COMMIT", 2},
+			{`{"text":"wind at Holm"}`, "DEFER_COMMIT", 3},
 			{"COMMIT TRANSACTION", "OK", 3},
 		}, 3},
 		{"empty transaction", []step{
 			{"BEGIN TRANSACTION", "OK", 0},
 			{"COMMIT TRANSACTION", "OK", 0},
 		}, 0},
-		{"begin again drops what was not committed", []step{
+		{"a transaction sent again is written again", []step{
 			{"BEGIN TRANSACTION", "OK", 0},
-			{`{"text":"ferry late"}`, "DEFER_COMMIT", 0},
-			{"BEGIN TRANSACTION", "OK", 0},
-			{`{"text":"ferry late"}`, "DEFER_COMMIT", 0},
-			{"COMMIT TRANSACTION", "OK", 1},
-		}, 1},
+			{`{"text":"ferry late"}`, "DEFER_COMMIT", 1},
+			{"BEGIN TRANSACTION", "OK", 1},
+			{`{"text":"ferry late"}`, "DEFER_COMMIT", 2},
+			{"COMMIT TRANSACTION", "OK", 2},
+		}, 2},
 		{"problem records are written and confirmed", []step{
 			{`{"text":42}`, "OK", 1},
 			{`{"text":"cut`, "OK", 2},
 			{"", "OK", 3},
 		}, 3},
-		{"uncommitted at the end is written", []step{
+		{"a transaction cut short keeps its records", []step{
 			{"BEGIN TRANSACTION", "OK", 0},
-			{`{"text":"ferry late"}`, "DEFER_COMMIT", 0},
+			{`{"text":"ferry late"}`, "DEFER_COMMIT", 1},
 		}, 1},
 		{"a mark needs the whole line", []step{
 			{"BEGIN TRANSACTION ", "OK", 1},
