@@ -128,6 +128,13 @@ which writes in place. A .gz or .zst FILE to --append to must decode to its
 end (a killed run may have cut it); otherwise nothing is written, exit 1.
 A standard output closed at the start (>&-) is an error, exit 1.
 
+--confirm (with --append -o FILE) is for rsyslog's omprog with
+confirmMessages="on": standard output then carries only the protocol's
+replies (OK once ready; OK per message, or OK and DEFER_COMMIT within
+useTransactions, each after the record is written to FILE; an "error: ..."
+line when a write fails, so rsyslog sends the message again). --fsync syncs
+FILE before each confirmation.
+
 Without -m, tag uses the built-in model: a demonstration (positive or
 negative sentiment, trained on product, film and restaurant reviews), not
 fit for moderation or any decision about a person. A tag is a guess: do not
