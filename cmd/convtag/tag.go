@@ -74,6 +74,7 @@ func newTagCmd(a *app) *cobra.Command {
 		o                                                            stream.Options
 		strict, showStats                                            bool
 		why                                                          int
+		cf                                                           confirmFlags
 	)
 	c := &cobra.Command{
 		Use:   "tag [flags] [FILE...]",
@@ -127,6 +128,13 @@ which writes in place. A .gz or .zst FILE to --append to must decode to its
 end (a killed run may have cut it); otherwise nothing is written, exit 1.
 A standard output closed at the start (>&-) is an error, exit 1.
 
+--confirm (with --append -o FILE) is for rsyslog's omprog with
+confirmMessages="on": standard output then carries only the protocol's
+replies (OK once ready; OK per message, or OK and DEFER_COMMIT within
+useTransactions, each after the record is written to FILE; an "error: ..."
+line when a write fails, so rsyslog sends the message again). --fsync syncs
+FILE before each confirmation.
+
 Without -m, tag uses the built-in model: a demonstration (positive or
 negative sentiment, trained on product, film and restaurant reviews), not
 fit for moderation or any decision about a person. A tag is a guess: do not
@@ -167,6 +175,9 @@ a same-size overwrite would switch the model in the middle of a block.
 				}
 			}
 			if err := checkTagFlags(&o, format, emit, compress, progress, output, why, textKeys); err != nil {
+				return err
+			}
+			if err := cf.check(&o, args, output, progress, shard != ""); err != nil {
 				return err
 			}
 			if err := tagColumns(&o, textKeys, textColumns, why); err != nil {
@@ -214,7 +225,14 @@ a same-size overwrite would switch the model in the middle of a block.
 				unchanged = append(unchanged, leftMessage(output, existed(output)))
 			}
 			var rej *stream.OutputFile
-			if rejects != "" {
+			if rejects != "" && cf.on {
+				f, err := cf.openRejects(rejects)
+				if err != nil {
+					return withCode(exitFailure, err)
+				}
+				defer f.Close()
+				o.Rejects = f
+			} else if rejects != "" {
 				rejExisted := existed(rejects)
 				if rej, err = stream.CreateOutputFile(rejects); err != nil {
 					return withCode(exitFailure, fmt.Errorf("--rejects: %w", err))
@@ -264,7 +282,12 @@ a same-size overwrite would switch the model in the middle of a block.
 				o.Progress = bar.update
 			}
 
-			st, err := stream.Run(ctx, o, args, a.stdin, a.stdout)
+			var st stream.Stats
+			if cf.on {
+				st, err = cf.run(ctx, a, o)
+			} else {
+				st, err = stream.Run(ctx, o, args, a.stdin, a.stdout)
+			}
 			if bar != nil {
 				bar.end(st, err == nil)
 			}
@@ -336,6 +359,7 @@ a same-size overwrite would switch the model in the middle of a block.
 	f.BoolVar(&strict, "strict", false, "exit with status 3 at the end if any record was rejected")
 	f.StringVar(&progress, "progress", "auto", "progress bar on stderr (bytes read of the inputs' size, records, records/s): auto (when stderr is a terminal and the input size is known), on or off")
 	f.BoolVar(&showStats, "stats", false, "print a closing summary on stderr")
+	cf.flags(f)
 	return c
 }
 
