@@ -303,5 +303,3 @@ func FuzzTokenizeFast(f *testing.F) {
 		}
 	})
 }
-
-
