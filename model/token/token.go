@@ -30,6 +30,8 @@ const (
 //
 // The steps, in order:
 //
+//  0. With Settings.DropEscapes, terminal escape sequences (ECMA-48 CSI
+//     and OSC, see Settings) are removed.
 //  1. Clean-up: every run of invalid UTF-8 bytes becomes one U+FFFD; the
 //     typographic apostrophes U+2018 and U+2019 become "'"; the
 //     characters that Unicode's NFKC_Casefold removes (default ignorables
@@ -119,6 +121,7 @@ type Tokens struct {
 	a, b, c, w []byte
 	spans      []span
 	iter       *norm.Iter
+	e          []byte // the text without its escape sequences (Settings.DropEscapes)
 }
 
 // Len is the number of tokens.
@@ -178,6 +181,11 @@ func (t *Tokenizer) chunkSizes() (int, int) {
 // run of ideographs without spaces or punctuation, a run of combining
 // marks without a starter) is normalised whole before it is cut.
 func (t *Tokenizer) Tokenize(ts *Tokens, text []byte) {
+	if t.s.DropEscapes && hasEscape(text) {
+		// The whole text, copied once; only texts with escapes pay.
+		ts.e = dropEscapes(ts.e[:0], text)
+		text = ts.e
+	}
 	if isASCII(text) {
 		t.tokenizeASCII(ts, text)
 		return
