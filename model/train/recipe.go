@@ -216,7 +216,7 @@ func (r Recipe) Fit(ctx context.Context, trainRecs, dev []Record, p Progress) (*
 	if err := r.Check(); err != nil {
 		return nil, nil, err
 	}
-	tok := token.New(token.Settings{})
+	tok := token.New(token.Defaults())
 	var ts token.Tokens
 	cut := func(recs []Record) []tokenized {
 		out := make([]tokenized, len(recs))
@@ -295,7 +295,7 @@ func (r Recipe) Fit(ctx context.Context, trainRecs, dev []Record, p Progress) (*
 	if r.Vectors != nil && r.Vectors.Dim != r.Dim {
 		return nil, nil, fmt.Errorf("model: embedding size %d but %s has %d-dimensional vectors", r.Dim, r.VectorsName, r.Vectors.Dim)
 	}
-	m, err := model.New(r.Config(), token.Settings{}, labels, words, r.Seed)
+	m, err := model.New(r.Config(), token.Defaults(), labels, words, r.Seed)
 	if err != nil {
 		return nil, nil, err
 	}
