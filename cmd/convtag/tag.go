@@ -316,6 +316,7 @@ a same-size overwrite would switch the model in the middle of a block.
 	f.StringArrayVar(&textColumns, "text-column", nil, "csv/tsv: header name of the text column; repeat to join several with a space (default text)")
 	f.StringVar(&o.TagKey, "tag-key", "tag", "key of the added tag (for csv/tsv: the name of the added column)")
 	f.StringVar(&o.ConfidenceKey, "confidence-key", "confidence", "key of the added confidence (rounded to 4 decimals)")
+	f.StringVar(&o.TagsKey, "tags-key", "tags", "multi-label model: key of the added array of tags (for csv/tsv: the name of the added column)")
 	f.BoolVar(&o.Scores, "scores", false, `add every label's probability as an object under "scores" (JSON output)`)
 	f.IntVar(&o.Top, "top", 0, `add the N best labels, best first, as an array under "top" (JSON output)`)
 	f.IntVar(&why, "why", 0, `add the N word windows that weighed most for the tag, as an array under "why" (JSON output)`)
@@ -403,6 +404,9 @@ func checkTagFlags(o *stream.Options, format, emit, compress, progress, output s
 	// The keys added to every record; none may be empty or another's.
 	type key struct{ flag, name string }
 	keys := []key{{"--tag-key", o.TagKey}, {"--confidence-key", o.ConfidenceKey}}
+	if o.TagsKey != o.TagKey {
+		keys = append(keys, key{"--tags-key", o.TagsKey})
+	}
 	if o.Scores {
 		keys = append(keys, key{"--scores", "scores"})
 	}
