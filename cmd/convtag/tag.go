@@ -112,7 +112,15 @@ it out. Records that cannot be tagged pass through unchanged and are counted
 boolean, array or object, a line longer than 64 MiB. Empty and blank lines
 and JSON records without the text key pass through unchanged; when none of
 the first 1,000 JSON records has the key, one warning names the keys they
-have. With --keep, untagged records are left out too. --scores, --top and
+have. With --keep, untagged records are left out too.
+
+On a multi-label model (train --multi-label) a record gets "tags" (key
+--tags-key): every tag whose probability reaches the tag's threshold stored
+in the model, highest first, or [] when none does, and the confidence key
+holds those tags' probabilities; --min-confidence TAG=P replaces a stored
+threshold. --keep and --drop match a record when any of its tags is listed
+(one with no tag matches the --unsure-tag). Text written as TSV, and CSV or
+TSV records, get the tags and their probabilities joined with commas. --scores, --top and
 --why go into JSON output only: with --format text they need --emit jsonl;
 with --format auto, text lines written as TSV go without them.
 
@@ -147,7 +155,8 @@ a same-size overwrite would switch the model in the middle of a block.
 		Example: `  convtag tag chat.jsonl > tagged.jsonl
   zstd -dc archive.jsonl.zst | convtag tag -m ferry.safetensors --keep schedule
   convtag tag --format text --emit jsonl notes.txt
-  tail -F service.log | convtag tag -k msg --min-confidence 0.6 --append -o tagged.jsonl.gz`,
+  tail -F service.log | convtag tag -k msg --min-confidence 0.6 --append -o tagged.jsonl.gz
+  convtag tag -m desks.safetensors --min-confidence spam=0.9 --keep tickets,praise testdata/demo/chat.jsonl`,
 		RunE: func(cmd *cobra.Command, args []string) error {
 			var err error
 			if rule, err = parseMinConfidence(minConf); err != nil {
