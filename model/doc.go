@@ -32,4 +32,8 @@ package model
 // __metadata__ (string values): format "convtag", format_version "1",
 // labels (JSON array), config (JSON Config), tokenizer (JSON
 // token.Settings), training (JSON summary, from train), checksum
-// "sha256:<hex of the buffer>", created_by.
+// "sha256:<hex of the buffer>", created_by; a multi-label model adds mode
+// "multi" (absent or "single" otherwise) and label_thresholds (JSON array,
+// one threshold in [0, 1] per label, aligned with labels). The tensors are
+// the same in both modes: a multi-label model's output layer gives one
+// logit per label, read through a sigmoid instead of a softmax.

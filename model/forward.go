@@ -74,7 +74,8 @@ func (m *Model) NewPredictor() *Predictor {
 func (p *Predictor) SetDirect(direct bool) { p.direct = direct }
 
 // Predict tokenizes text, looks its tokens up in the vocabulary and returns
-// one probability per label (softmax of the logits).
+// one probability per label: the softmax of the logits, or for a
+// multi-label model (Model.Multi) each logit's sigmoid.
 func (p *Predictor) Predict(text []byte) []float32 {
 	p.tok.Tokenize(&p.toks, text)
 	p.rows = p.rows[:0]
@@ -115,7 +116,11 @@ func (p *Predictor) PredictRows(rows []int32) []float32 {
 		p.winOK = true
 	}
 	p.dense()
-	softmax(p.probs, p.logits)
+	if p.m.Multi {
+		sigmoid(p.probs, p.logits)
+	} else {
+		softmax(p.probs, p.logits)
+	}
 	return p.probs
 }
 

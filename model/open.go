@@ -226,6 +226,9 @@ func assemble(meta map[string]string, tensors []safetensors.Tensor) (*Model, err
 	if i := firstDuplicate(m.Labels); i >= 0 {
 		return nil, fmt.Errorf("%w: duplicate label %s", ErrMetadata, quoteCapped(m.Labels[i]))
 	}
+	if err := m.decodeMulti(); err != nil {
+		return nil, err
+	}
 	if c, ok := meta[MetaChecksum]; ok {
 		if _, err := parseChecksum(c); err != nil {
 			return nil, err

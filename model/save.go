@@ -69,6 +69,9 @@ func (m *Model) container(o SaveOptions) (map[string]string, []safetensors.Tenso
 	meta[MetaConfig] = mustJSON(m.Config)
 	meta[MetaTokenizer] = mustJSON(m.TokenSettings)
 	meta[MetaCreatedBy] = "convtag " + cmp.Or(o.Version, "dev")
+	if err := m.putMulti(meta); err != nil {
+		return nil, nil, err
+	}
 	h := sha256.New()
 	for _, t := range tensors {
 		h.Write(t.Data)

@@ -113,7 +113,15 @@ it out. Records that cannot be tagged pass through unchanged and are counted
 boolean, array or object, a line longer than 64 MiB. Empty and blank lines
 and JSON records without the text key pass through unchanged; when none of
 the first 1,000 JSON records has the key, one warning names the keys they
-have. With --keep, untagged records are left out too. --scores, --top and
+have. With --keep, untagged records are left out too.
+
+On a multi-label model (train --multi-label) a record gets "tags" (key
+--tags-key): every tag whose probability reaches the tag's threshold stored
+in the model, highest first, or [] when none does, and the confidence key
+holds those tags' probabilities; --min-confidence TAG=P replaces a stored
+threshold. --keep and --drop match a record when any of its tags is listed
+(one with no tag matches the --unsure-tag). Text written as TSV, and CSV or
+TSV records, get the tags and their probabilities joined with commas. --scores, --top and
 --why go into JSON output only: with --format text they need --emit jsonl;
 with --format auto, text lines written as TSV go without them.
 
@@ -155,7 +163,8 @@ a same-size overwrite would switch the model in the middle of a block.
 		Example: `  convtag tag chat.jsonl > tagged.jsonl
   zstd -dc archive.jsonl.zst | convtag tag -m ferry.safetensors --keep schedule
   convtag tag --format text --emit jsonl notes.txt
-  tail -F service.log | convtag tag -k msg --min-confidence 0.6 --append -o tagged.jsonl.gz`,
+  tail -F service.log | convtag tag -k msg --min-confidence 0.6 --append -o tagged.jsonl.gz
+  convtag tag -m desks.safetensors --min-confidence spam=0.9 --keep tickets,praise testdata/demo/chat.jsonl`,
 		RunE: func(cmd *cobra.Command, args []string) error {
 			var err error
 			if rule, err = parseMinConfidence(minConf); err != nil {
@@ -339,6 +348,7 @@ a same-size overwrite would switch the model in the middle of a block.
 	f.StringArrayVar(&textColumns, "text-column", nil, "csv/tsv: header name of the text column; repeat to join several with a space (default text)")
 	f.StringVar(&o.TagKey, "tag-key", "tag", "key of the added tag (for csv/tsv: the name of the added column)")
 	f.StringVar(&o.ConfidenceKey, "confidence-key", "confidence", "key of the added confidence (rounded to 4 decimals)")
+	f.StringVar(&o.TagsKey, "tags-key", "tags", "multi-label model: key of the added array of tags (for csv/tsv: the name of the added column)")
 	f.BoolVar(&o.Scores, "scores", false, `add every label's probability as an object under "scores" (JSON output)`)
 	f.IntVar(&o.Top, "top", 0, `add the N best labels, best first, as an array under "top" (JSON output)`)
 	f.IntVar(&why, "why", 0, `add the N word windows that weighed most for the tag, as an array under "why" (JSON output)`)
@@ -427,6 +437,9 @@ func checkTagFlags(o *stream.Options, format, emit, compress, progress, output s
 	// The keys added to every record; none may be empty or another's.
 	type key struct{ flag, name string }
 	keys := []key{{"--tag-key", o.TagKey}, {"--confidence-key", o.ConfidenceKey}}
+	if o.TagsKey != o.TagKey {
+		keys = append(keys, key{"--tags-key", o.TagsKey})
+	}
 	if o.Scores {
 		keys = append(keys, key{"--scores", "scores"})
 	}

@@ -77,6 +77,10 @@ type Recipe struct {
 
 	// The model card's words, stored in the summary.
 	Description, IntendedUse, NotFor string
+
+	// ThresholdGoal chooses a multi-label model's per-label thresholds
+	// (FitMulti); the zero value maximises each label's dev F1.
+	ThresholdGoal ThresholdGoal
 }
 
 // Defaults returns the recipe train runs without flags.
@@ -94,9 +98,11 @@ func (r Recipe) Config() model.Config {
 	return model.Config{Dim: r.Dim, Widths: r.Widths, Filters: r.Filters, Hidden: r.Hidden, Buckets: r.Buckets}
 }
 
-// Record is one labelled text.
+// Record is one labelled text. Fit reads Label; FitMulti reads Tags (none,
+// one or several labels).
 type Record struct {
 	Text, Label string
+	Tags        []string
 }
 
 // Progress receives what Fit has to say while it runs; a nil field is
@@ -131,6 +137,12 @@ func (e *FewLabelsError) Error() string {
 // Summary is the training record stored under the model's "training"
 // metadata key (Store). It holds no times, so the file stays reproducible.
 type Summary struct {
+	// Mode is model.ModeMulti for a multi-label model (FitMulti), else empty.
+	Mode string `json:"mode,omitempty"`
+	// Thresholds: how a multi-label model's per-label thresholds were
+	// chosen on dev, and Goal the goal they were chosen for.
+	Thresholds []LabelThreshold `json:"label_thresholds,omitempty"`
+	Goal       string           `json:"label_threshold_goal,omitempty"`
 	// The model card's own words (Recipe.Description, IntendedUse, NotFor).
 	Description string `json:"description,omitempty"`
 	IntendedUse string `json:"intended_use,omitempty"`
@@ -176,6 +188,9 @@ type CurvePoint struct {
 type Scores struct {
 	DevAccuracy float64 `json:"dev_accuracy"`
 	DevMacroF1  float64 `json:"dev_macro_f1"`
+	// DevMicroF1 is the multi-label micro-averaged F1 (DevAccuracy is then
+	// the subset accuracy); 0 for single-label.
+	DevMicroF1 float64 `json:"dev_micro_f1,omitempty"`
 	// DevPerLabel is precision, recall, F1 and support per label on the
 	// dev records (the network's; empty without dev records).
 	DevPerLabel []metrics.LabelStats `json:"dev_per_label,omitempty"`
