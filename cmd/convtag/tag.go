@@ -14,6 +14,7 @@ import (
 	"sort"
 	"strings"
 	"syscall"
+	"time"
 
 	"github.com/spf13/cobra"
 
@@ -264,13 +265,19 @@ a same-size overwrite would switch the model in the middle of a block.
 				o.Progress = bar.update
 			}
 
+			started, inputBytes := time.Now(), int64(0)
+			if o.Shard.N > 0 {
+				if fi, err := os.Stat(args[0]); err == nil {
+					inputBytes = fi.Size()
+				}
+			}
 			st, err := stream.Run(ctx, o, args, a.stdin, a.stdout)
 			if bar != nil {
 				bar.end(st, err == nil)
 			}
 			if err == nil && o.Shard.N > 0 && output != "" && output != "-" {
 				// Written last: a part whose stats file exists is done.
-				err = writeShardStats(output+".stats.json", args[0], o.Shard, st)
+				err = writeShardStats(output, args[0], inputBytes, started, o.Shard, st)
 			}
 			if err == nil && rej != nil {
 				if err = rej.Commit(); err != nil {
