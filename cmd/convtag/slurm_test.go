@@ -456,3 +456,83 @@ func firstLine(b []byte) string {
 	s.Scan()
 	return s.Text()
 }
+
+// TestSlurmRates (CONVTAG_SLURM_RATES=1) measures the records/s of the
+// huge-file script as 1, 2 and 4 array tasks on the private cluster,
+// beside one local process over the same file in the same run (the
+// baseline), from the parts' stats files: records over the span from the
+// first task's start to the last one's end, and CPU seconds summed. It
+// asserts nothing about speed (on one machine the tasks share its cores:
+// the figure shows the overhead of parts, TestSlurm shows correctness).
+func TestSlurmRates(t *testing.T) {
+	if os.Getenv("CONVTAG_SLURM_RATES") != "1" {
+		t.Skip("set CONVTAG_SLURM_RATES=1 to measure")
+	}
+	bin := binary(t)
+	c := startSlurm(t, filepath.Dir(bin)+":"+os.Getenv("PATH"))
+	shared := filepath.Join(c.dir, "shared")
+	jobs := filepath.Join(c.dir, "jobs")
+	for _, d := range []string{"models", "chat/logs", "chat/tagged/parts"} {
+		os.MkdirAll(filepath.Join(shared, d), 0o755)
+	}
+	os.MkdirAll(jobs, 0o755)
+	s, _ := os.ReadFile("../../testdata/slurm/by-part.sbatch")
+	swap := strings.NewReplacer("/shared/", shared+"/")
+	os.WriteFile(filepath.Join(jobs, "by-part.sbatch"), []byte(swap.Replace(string(s))), 0o644)
+	m, _ := os.ReadFile("testdata/eval/demo-small.safetensors")
+	model := filepath.Join(shared, "models", "ferry.safetensors")
+	os.WriteFile(model, m, 0o644)
+	records := 2_000_000
+	if v, err := strconv.Atoi(os.Getenv("CONVTAG_SLURM_RECORDS")); err == nil {
+		records = v
+	}
+	input := filepath.Join(shared, "chat", "archive-2026.jsonl")
+	os.WriteFile(input, []byte(chat(records)), 0o644)
+	parts := filepath.Join(shared, "chat", "tagged", "parts")
+	// rate reads the stats files of n parts.
+	rate := func(dir string, n int) (perSec, cpu float64) {
+		var first, last time.Time
+		var recs int64
+		for k := 1; k <= n; k++ {
+			b, err := os.ReadFile(filepath.Join(dir, fmt.Sprintf("part-%d.jsonl%s", k, shardStatsSuffix)))
+			var st shardStats
+			if err != nil || json.Unmarshal(b, &st) != nil {
+				t.Fatalf("part %d/%d: %v", k, n, err)
+			}
+			end := st.Started.Add(time.Duration(st.Seconds * float64(time.Second)))
+			if first.IsZero() || st.Started.Before(first) {
+				first = st.Started
+			}
+			if end.After(last) {
+				last = end
+			}
+			recs += st.Records
+			cpu += st.CPUSeconds
+		}
+		if recs != int64(records) {
+			t.Fatalf("%d parts counted %d records of %d", n, recs, records)
+		}
+		return float64(recs) / last.Sub(first).Seconds(), cpu
+	}
+	for rep := 1; rep <= 2; rep++ {
+		base := filepath.Join(c.dir, "base")
+		os.MkdirAll(base, 0o755)
+		if out, err := exec.Command(bin, "tag", "-m", model, "-j", "2", "--shard", "1/1", "-o", filepath.Join(base, "part-1.jsonl"), input).CombinedOutput(); err != nil {
+			t.Fatalf("baseline: %v %s", err, out)
+		}
+		baseRate, baseCPU := rate(base, 1)
+		t.Logf("run %d: one local process, -j 2: %.0f records/s, %.2f CPU s", rep, baseRate, baseCPU)
+		for _, n := range []int{1, 2, 4} {
+			os.RemoveAll(parts)
+			os.MkdirAll(parts, 0o755)
+			cpus := max(1, 2/n)
+			line := fmt.Sprintf("sbatch --wait --array=1-%d --cpus-per-task=%d by-part.sbatch", n, cpus)
+			if _, err := c.sh(t, jobs, line); err != nil {
+				c.logs(t)
+				t.Fatal(err)
+			}
+			r, cpu := rate(parts, n)
+			t.Logf("run %d: %d array tasks, -j %d each: %.0f records/s (%.2f of the local process), %.2f CPU s", rep, n, cpus, r, r/baseRate, cpu)
+		}
+	}
+}
