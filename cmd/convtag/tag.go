@@ -14,6 +14,7 @@ import (
 	"sort"
 	"strings"
 	"syscall"
+	"time"
 
 	"github.com/spf13/cobra"
 
@@ -291,6 +292,12 @@ a same-size overwrite would switch the model in the middle of a block.
 				o.Progress = bar.update
 			}
 
+			started, inputBytes := time.Now(), int64(0)
+			if o.Shard.N > 0 {
+				if fi, err := os.Stat(args[0]); err == nil {
+					inputBytes = fi.Size()
+				}
+			}
 			var st stream.Stats
 			if cf.on {
 				st, err = cf.run(ctx, a, o)
@@ -302,7 +309,7 @@ a same-size overwrite would switch the model in the middle of a block.
 			}
 			if err == nil && o.Shard.N > 0 && output != "" && output != "-" {
 				// Written last: a part whose stats file exists is done.
-				err = writeShardStats(output+".stats.json", args[0], o.Shard, st)
+				err = writeShardStats(output, args[0], inputBytes, started, o.Shard, st)
 			}
 			if err == nil && rej != nil {
 				if err = rej.Commit(); err != nil {
