@@ -69,6 +69,14 @@ func (m *Model) container(o SaveOptions) (map[string]string, []Tensor, error) {
 	meta[MetaConfig] = mustJSON(m.Config)
 	meta[MetaTokenizer] = mustJSON(m.TokenSettings)
 	meta[MetaCreatedBy] = "convtag " + cmp.Or(o.Version, "dev")
+	delete(meta, MetaLinearC)
+	if m.Linear != nil {
+		meta[MetaLinearC] = strconv.FormatFloat(m.Linear.C, 'g', -1, 64)
+	}
+	delete(meta, MetaScorer)
+	if m.Scorer.kind() != ScoreNetwork {
+		meta[MetaScorer] = encodeScorer(m.Scorer)
+	}
 	h := sha256.New()
 	for _, t := range tensors {
 		h.Write(t.Data)
@@ -125,6 +133,14 @@ func (m *Model) tensors() []Tensor {
 	add(TensorVocabBytes, "U8", v.blob, len(v.blob))
 	if len(m.Baseline) > 0 {
 		add(TensorBaseline, "U8", m.Baseline, len(m.Baseline))
+	}
+	if lm := m.Linear; lm != nil {
+		add(TensorLinearOffsets, "I64", rawBytes(lm.Offsets), len(lm.Offsets))
+		add(TensorLinearWeights, "F32", rawBytes(lm.Weights), lm.Len(), lm.Labels())
+		add(TensorLinearIDF, "F32", rawBytes(lm.IDF), len(lm.IDF))
+		add(TensorLinearBias, "F32", rawBytes(lm.Bias), len(lm.Bias))
+		add(TensorLinearIndex, "I32", rawBytes(lm.Index), len(lm.Index))
+		add(TensorLinearGrams, "U8", lm.Grams, len(lm.Grams))
 	}
 	return ts
 }
@@ -285,6 +301,9 @@ func (m *Model) Verify() error {
 		return fail(fmt.Errorf("%w: metadata says %s, data gives %s", ErrChecksum, want, got))
 	}
 	if err := m.checkLarge(); err != nil {
+		return fail(err)
+	}
+	if err := m.checkLinear(); err != nil {
 		return fail(err)
 	}
 	if err := m.checkProbes(); err != nil {
