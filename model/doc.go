@@ -12,7 +12,8 @@
 package model
 
 // The model file is a safetensors container (8-byte little-endian header
-// length, JSON header, one contiguous buffer). Tensors, with
+// length, JSON header, one contiguous buffer), read and written by package
+// model/safetensors; this package adds the schema. Tensors, with
 // rows = 1 + V + B (padding, words, buckets):
 //
 //	embedding          F32 [rows, d]
@@ -31,4 +32,8 @@ package model
 // __metadata__ (string values): format "convtag", format_version "1",
 // labels (JSON array), config (JSON Config), tokenizer (JSON
 // token.Settings), training (JSON summary, from train), checksum
-// "sha256:<hex of the buffer>", created_by.
+// "sha256:<hex of the buffer>", created_by; a multi-label model adds mode
+// "multi" (absent or "single" otherwise) and label_thresholds (JSON array,
+// one threshold in [0, 1] per label, aligned with labels). The tensors are
+// the same in both modes: a multi-label model's output layer gives one
+// logit per label, read through a sigmoid instead of a softmax.

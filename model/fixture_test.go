@@ -16,6 +16,7 @@ import (
 	"testing"
 
 	"convtag/model/internal/kernel"
+	"convtag/model/safetensors"
 	"convtag/model/token"
 )
 
@@ -223,7 +224,7 @@ type stTensorDigest struct {
 
 func stDigestOf(t *testing.T, raw []byte) stDigest {
 	t.Helper()
-	meta, tensors, err := ParseContainer(raw)
+	meta, tensors, err := safetensors.Parse(raw)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -234,19 +235,19 @@ func stDigestOf(t *testing.T, raw []byte) stDigest {
 		var vals []float64
 		switch ts.DType {
 		case "F32":
-			for _, x := range viewF32(ts.Data) {
+			for _, x := range safetensors.ViewF32(ts.Data) {
 				vals = append(vals, float64(x))
 			}
 		case "F16":
-			for _, x := range viewU16(ts.Data) {
+			for _, x := range safetensors.ViewU16(ts.Data) {
 				vals = append(vals, stHalfValue(x))
 			}
 		case "I32":
-			for _, x := range viewI32(ts.Data) {
+			for _, x := range safetensors.ViewI32(ts.Data) {
 				vals = append(vals, float64(x))
 			}
 		case "I64":
-			for _, x := range viewI64(ts.Data) {
+			for _, x := range safetensors.ViewI64(ts.Data) {
 				vals = append(vals, float64(x))
 			}
 		case "U8":
@@ -256,7 +257,7 @@ func stDigestOf(t *testing.T, raw []byte) stDigest {
 		default:
 			t.Fatalf("tensor %s: no digest for dtype %s", ts.Name, ts.DType)
 		}
-		td := stTensorDigest{Name: ts.Name, DType: ts.DType, Shape: ts.Shape}
+		td := stTensorDigest{Name: ts.Name, DType: string(ts.DType), Shape: ts.Shape}
 		for _, v := range vals {
 			td.Sum += v
 			td.abs += math.Abs(v)

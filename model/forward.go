@@ -113,9 +113,10 @@ func (p *Predictor) BaselineProbs() []float64 { return p.linP }
 func (p *Predictor) SetDirect(direct bool) { p.direct = direct }
 
 // Predict tokenizes text, looks its tokens up in the vocabulary and returns
-// one probability per label: the network's softmax of the logits, or, as
-// the Predictor's Scorer says, the linear baseline's probabilities of the
-// same tokens or the mixture of both.
+// one probability per label: the network's softmax of the logits (for a
+// multi-label model, Model.Multi, each logit's sigmoid), or, as the
+// Predictor's Scorer says, the linear baseline's probabilities of the same
+// tokens or the mixture of both (single-label models only).
 func (p *Predictor) Predict(text []byte) []float32 {
 	p.tok.Tokenize(&p.toks, text)
 	p.rows = p.rows[:0]
@@ -169,7 +170,11 @@ func (p *Predictor) PredictRows(rows []int32) []float32 {
 		p.winOK = true
 	}
 	p.dense()
-	softmax(p.probs, p.logits)
+	if p.m.Multi {
+		sigmoid(p.probs, p.logits)
+	} else {
+		softmax(p.probs, p.logits)
+	}
 	return p.probs
 }
 

@@ -1,72 +1,13 @@
 package model
 
 import (
-	"bytes"
 	"errors"
-	"fmt"
 	"strings"
 	"testing"
 
+	"convtag/model/safetensors"
 	"convtag/model/token"
 )
-
-// stEntries is a header of n entries: zero-byte U8 tensors, or metadata
-// keys when meta is set.
-func stEntries(n int, meta bool) []byte {
-	var h bytes.Buffer
-	h.WriteByte('{')
-	if meta {
-		h.WriteString(`"__metadata__":{`)
-	}
-	for i := range n {
-		if i > 0 {
-			h.WriteByte(',')
-		}
-		if meta {
-			fmt.Fprintf(&h, `"k%d":"v"`, i)
-		} else {
-			fmt.Fprintf(&h, `"t%d":{"dtype":"U8","shape":[0],"data_offsets":[0,0]}`, i)
-		}
-	}
-	if meta {
-		h.WriteByte('}')
-	}
-	h.WriteByte('}')
-	return stRaw(h.String(), nil)
-}
-
-// TestHeaderEntryCap: a header may list at most MaxEntries tensors
-// and MaxEntries metadata keys; a million entries are refused with the
-// cap's error (not a parse of the whole header).
-func TestHeaderEntryCap(t *testing.T) {
-	for _, c := range []struct {
-		name string
-		n    int
-		meta bool
-		ok   bool
-	}{
-		{"tensors at the cap", MaxEntries, false, true},
-		{"tensors one over", MaxEntries + 1, false, false},
-		{"a million tensors", 1_000_000, false, false},
-		{"metadata at the cap", MaxEntries, true, true},
-		{"metadata one over", MaxEntries + 1, true, false},
-		{"a million metadata keys", 1_000_000, true, false},
-	} {
-		t.Run(c.name, func(t *testing.T) {
-			meta, ts, err := ParseContainer(stEntries(c.n, c.meta))
-			if c.ok {
-				if err != nil || len(ts)+len(meta) != c.n {
-					t.Fatalf("%d entries: %d tensors, %d keys, %v", c.n, len(ts), len(meta), err)
-				}
-				return
-			}
-			var fe *FormatError
-			if !errors.Is(err, ErrEntries) || !errors.As(err, &fe) || !strings.Contains(err.Error(), fmt.Sprint(MaxEntries)) {
-				t.Fatalf("%d entries: %v, want ErrEntries naming the cap", c.n, err)
-			}
-		})
-	}
-}
 
 // TestUnexpectedTensorStable: with several unexpected tensors the error
 // names the same one, the first by name, and counts the others, on every
@@ -113,9 +54,9 @@ func TestErrorsCapQuotedValues(t *testing.T) {
 		{"unexpected tensor name", stBuild(t, m, func(_ map[string]string, ts []Tensor) []Tensor {
 			return append(ts, Tensor{Name: long, DType: "U8", Shape: []int{1}, Data: []byte{1}})
 		}), ErrUnexpectedTensor},
-		{"dtype", stRaw(`{"t":{"dtype":"`+long+`","shape":[0],"data_offsets":[0,0]}}`, nil), ErrDType},
-		{"unknown field", stRaw(`{"t":{"`+long+`":1}}`, nil), ErrHeader},
-		{"string token", stRaw(`{"t":"`+long+`"}`, nil), ErrHeader},
+		{"dtype", stRaw(`{"t":{"dtype":"`+long+`","shape":[0],"data_offsets":[0,0]}}`, nil), safetensors.ErrDType},
+		{"unknown field", stRaw(`{"t":{"`+long+`":1}}`, nil), safetensors.ErrHeader},
+		{"string token", stRaw(`{"t":"`+long+`"}`, nil), safetensors.ErrHeader},
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			_, err := Load(c.raw, "ferry.safetensors")

@@ -40,6 +40,14 @@ type Model struct {
 	TokenSettings token.Settings
 	Labels        []string
 
+	// Multi marks a multi-label model: one sigmoid per label (each in
+	// [0, 1], independently) instead of a softmax over the labels, and a
+	// record gets every label whose probability reaches its threshold.
+	Multi bool
+	// Thresholds are a multi-label model's per-label thresholds (chosen on
+	// the dev split by training), aligned with Labels; nil when !Multi.
+	Thresholds []float64
+
 	// Emb is the embedding matrix [Rows()][Dim]: row 0 is padding (all
 	// zero), rows 1..V the vocabulary words in order, rows V+1..V+B the
 	// shared buckets for unknown words.

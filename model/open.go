@@ -12,13 +12,13 @@ import (
 	"slices"
 	"strconv"
 	"strings"
-	"unsafe"
 
 	"convtag/model/linear"
+	"convtag/model/safetensors"
 	"convtag/model/token"
 )
 
-// Tensor names of a model file (see the contract in Encode's doc).
+// safetensors.Tensor names of a model file (see the contract in Encode's doc).
 const (
 	TensorEmbedding    = "embedding"
 	TensorVocabOffsets = "vocab.offsets"
@@ -75,13 +75,6 @@ type source struct {
 	data int    // offset of the data buffer in file
 }
 
-// littleEndian is whether this host stores numbers little-endian, as the
-// file does; only then can tensors be viewed in place.
-var littleEndian = func() bool {
-	x := uint16(1)
-	return *(*byte)(unsafe.Pointer(&x)) == 1
-}()
-
 // Open memory-maps the model file at path (read-only, shared) and checks it
 // as Load does; the tensors are views of the mapping. Close the model to
 // unmap it. On systems without mmap the file is read into memory.
@@ -120,8 +113,8 @@ var readLimit int64 = MaxReadSize
 
 // readFile is the portable way to get a file's bytes, and Open's fallback.
 // It reads at most readLimit bytes and one more, to tell a file of exactly
-// the limit from a longer one. A header length that ParseContainer would
-// refuse (zero, as /dev/zero gives, or over MaxHeader) stops the read after
+// the limit from a longer one. A header length that safetensors.Parse would
+// refuse (zero, as /dev/zero gives, or over safetensors.MaxHeader) stops the read after
 // those 8 bytes, which Load then rejects with the container's own error.
 func readFile(path string) ([]byte, func() error, error) {
 	f, err := os.Open(path)
@@ -137,7 +130,7 @@ func readFile(path string) ([]byte, func() error, error) {
 		}
 		return nil, nil, err
 	}
-	if n := binary.LittleEndian.Uint64(head); n == 0 || n > MaxHeader {
+	if n := binary.LittleEndian.Uint64(head); n == 0 || n > safetensors.MaxHeader {
 		return head, nil, nil
 	}
 	rest, err := io.ReadAll(io.LimitReader(f, readLimit+1-int64(len(head))))
@@ -157,7 +150,7 @@ func readFile(path string) ([]byte, func() error, error) {
 // A tensor that is not aligned in memory for its type, or any tensor on a
 // big-endian host, is copied instead.
 //
-// After the container checks of ParseContainer it checks the schema: the
+// After the container checks of safetensors.Parse it checks the schema: the
 // format and format_version metadata, labels, config and tokenizer
 // settings, that every tensor the config calls for is present with its
 // dtype and shape and no other is, the vocabulary (offsets non-decreasing
@@ -180,15 +173,15 @@ func Load(b []byte, name string) (*Model, error) {
 }
 
 func load(b []byte, name string) (*Model, error) {
-	meta, tensors, err := ParseContainer(b)
+	meta, tensors, err := safetensors.Parse(b)
 	if err != nil {
-		return nil, err
+		return nil, fromContainer(err)
 	}
 	m, err := assemble(meta, tensors)
 	if err != nil {
 		return nil, err
 	}
-	n := binary.LittleEndian.Uint64(b) // checked by ParseContainer
+	n := binary.LittleEndian.Uint64(b) // checked by safetensors.Parse
 	m.src = &source{name: name, file: b, data: 8 + int(n)}
 	return m, nil
 }
@@ -216,7 +209,7 @@ func decodeMeta(meta map[string]string, key string, v any) error {
 
 // assemble checks a parsed container against the model schema and builds
 // the model over its tensors.
-func assemble(meta map[string]string, tensors []Tensor) (*Model, error) {
+func assemble(meta map[string]string, tensors []safetensors.Tensor) (*Model, error) {
 	if f, ok := meta[MetaFormat]; !ok || f != FormatName {
 		return nil, fmt.Errorf("%w: format %s, want %q", ErrNotModel, quoteCapped(f), FormatName)
 	}
@@ -245,13 +238,16 @@ func assemble(meta map[string]string, tensors []Tensor) (*Model, error) {
 	if i := firstDuplicate(m.Labels); i >= 0 {
 		return nil, fmt.Errorf("%w: duplicate label %s", ErrMetadata, quoteCapped(m.Labels[i]))
 	}
+	if err := m.decodeMulti(); err != nil {
+		return nil, err
+	}
 	if c, ok := meta[MetaChecksum]; ok {
 		if _, err := parseChecksum(c); err != nil {
 			return nil, err
 		}
 	}
 
-	s := &schema{byName: make(map[string]*Tensor, len(tensors))}
+	s := &schema{byName: make(map[string]*safetensors.Tensor, len(tensors))}
 	for i := range tensors {
 		s.byName[tensors[i].Name] = &tensors[i]
 	}
@@ -290,12 +286,12 @@ func assemble(meta map[string]string, tensors []Tensor) (*Model, error) {
 
 // schema hands out the tensors the config calls for, checked.
 type schema struct {
-	byName map[string]*Tensor
+	byName map[string]*safetensors.Tensor
 	used   map[string]bool
 }
 
 // get returns the named tensor after checking its dtype and shape.
-func (s *schema) get(name, dtype string, shape ...int) (*Tensor, error) {
+func (s *schema) get(name string, dtype safetensors.DType, shape ...int) (*safetensors.Tensor, error) {
 	t, ok := s.byName[name]
 	if !ok {
 		return nil, formatErr(name, ErrMissingTensor, "")
@@ -331,7 +327,7 @@ func (s *schema) f32(name string, shape ...int) ([]float32, error) {
 	if err != nil {
 		return nil, err
 	}
-	return viewF32(t.Data), nil
+	return safetensors.ViewF32(t.Data), nil
 }
 
 // finite32 is f32 for a tensor whose every value must be finite.
@@ -366,7 +362,7 @@ func (s *schema) build(m *Model) error {
 	if err != nil {
 		return err
 	}
-	offs := viewI64(t.Data)
+	offs := safetensors.ViewI64(t.Data)
 	blobT, ok := s.byName[TensorVocabBytes]
 	if !ok {
 		return formatErr(TensorVocabBytes, ErrMissingTensor, "")
@@ -394,7 +390,7 @@ func (s *schema) build(m *Model) error {
 	if err != nil {
 		return err
 	}
-	index := viewI32(t.Data)
+	index := safetensors.ViewI32(t.Data)
 	m.Vocab = &Vocab{blob: blob, offs: offs, index: index, buckets: cfg.Buckets}
 
 	rows := m.Rows()
@@ -486,11 +482,11 @@ func (s *schema) buildLinear(m *Model) error {
 	if ot, err = s.get(TensorLinearOffsets, "I64", nf+1); err != nil {
 		return err
 	}
-	v.Offsets = viewI64(ot.Data)
+	v.Offsets = safetensors.ViewI64(ot.Data)
 	if it, err = s.get(TensorLinearIndex, "I32", it.Shape[0]); err != nil {
 		return err
 	}
-	v.Index = viewI32(it.Data)
+	v.Index = safetensors.ViewI32(it.Data)
 	if v.IDF, err = s.f32(TensorLinearIDF, nf); err != nil {
 		return err
 	}
@@ -622,14 +618,14 @@ func (s *schema) buildFold(m *Model, rows int) error {
 		ft.Width = w
 		// Row 0 is padding: its responses are zero, as the padding vector is.
 		if dtype == "F32" {
-			ft.F32 = viewF32(t.Data)
+			ft.F32 = safetensors.ViewF32(t.Data)
 			for j, x := range ft.F32[:w*f] {
 				if x != 0 {
 					return formatErr(FoldName(i), ErrSchema, "padding row 0 has %v at %d, must be zero", x, j)
 				}
 			}
 		} else {
-			ft.F16 = viewU16(t.Data)
+			ft.F16 = safetensors.ViewU16(t.Data)
 			for j, x := range ft.F16[:w*f] {
 				if x&0x7fff != 0 {
 					return formatErr(FoldName(i), ErrSchema, "padding row 0 has half 0x%04x at %d, must be zero", x, j)
@@ -671,72 +667,4 @@ func firstNonFinite16(v []uint16) int {
 		}
 	}
 	return -1
-}
-
-// aligned reports whether b can be viewed in place as elements of the given
-// size: a little-endian host and b's start a multiple of size.
-func aligned(b []byte, size uintptr) bool {
-	return littleEndian && uintptr(unsafe.Pointer(unsafe.SliceData(b)))%size == 0
-}
-
-// viewF32 returns b (little-endian F32) as []float32, in place when
-// aligned, else as a copy.
-func viewF32(b []byte) []float32 {
-	n := len(b) / 4
-	if n == 0 {
-		return nil
-	}
-	if aligned(b, 4) {
-		return unsafe.Slice((*float32)(unsafe.Pointer(&b[0])), n)
-	}
-	v := make([]float32, n)
-	for i := range v {
-		v[i] = math.Float32frombits(binary.LittleEndian.Uint32(b[4*i:]))
-	}
-	return v
-}
-
-func viewI32(b []byte) []int32 {
-	n := len(b) / 4
-	if n == 0 {
-		return nil
-	}
-	if aligned(b, 4) {
-		return unsafe.Slice((*int32)(unsafe.Pointer(&b[0])), n)
-	}
-	v := make([]int32, n)
-	for i := range v {
-		v[i] = int32(binary.LittleEndian.Uint32(b[4*i:]))
-	}
-	return v
-}
-
-func viewI64(b []byte) []int64 {
-	n := len(b) / 8
-	if n == 0 {
-		return nil
-	}
-	if aligned(b, 8) {
-		return unsafe.Slice((*int64)(unsafe.Pointer(&b[0])), n)
-	}
-	v := make([]int64, n)
-	for i := range v {
-		v[i] = int64(binary.LittleEndian.Uint64(b[8*i:]))
-	}
-	return v
-}
-
-func viewU16(b []byte) []uint16 {
-	n := len(b) / 2
-	if n == 0 {
-		return nil
-	}
-	if aligned(b, 2) {
-		return unsafe.Slice((*uint16)(unsafe.Pointer(&b[0])), n)
-	}
-	v := make([]uint16, n)
-	for i := range v {
-		v[i] = binary.LittleEndian.Uint16(b[2*i:])
-	}
-	return v
 }

@@ -9,6 +9,8 @@ import (
 	"runtime"
 	"strings"
 	"testing"
+
+	"convtag/model/safetensors"
 )
 
 // A model that cannot be mapped (a pipe, a device) is read whole, but no
@@ -56,7 +58,7 @@ func TestOpenReadLimit(t *testing.T) {
 			if tc.path == "/dev/zero" {
 				// Its header length, 0, is refused after 8 bytes, without
 				// reading on to the limit.
-				if !errors.Is(err, ErrHeader) && !errors.Is(err, ErrHeaderTooLarge) && !errors.Is(err, ErrTooShort) {
+				if !errors.Is(err, safetensors.ErrHeader) && !errors.Is(err, safetensors.ErrHeaderTooLarge) && !errors.Is(err, safetensors.ErrTooShort) {
 					t.Fatalf("err %v, want the container's header error", err)
 				}
 				return

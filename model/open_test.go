@@ -17,6 +17,7 @@ import (
 	"unsafe"
 
 	"convtag/model/nb"
+	"convtag/model/safetensors"
 	"convtag/model/token"
 )
 
@@ -252,7 +253,7 @@ func stBuild(t *testing.T, m *Model, edit stEdit) []byte {
 	}
 	orig := meta[MetaChecksum]
 	ts = edit(meta, ts)
-	slices.SortStableFunc(ts, func(a, b Tensor) int { return DTypeSize(b.DType) - DTypeSize(a.DType) })
+	slices.SortStableFunc(ts, func(a, b Tensor) int { return b.DType.Size() - a.DType.Size() })
 	if c, ok := meta[MetaChecksum]; ok && c == orig {
 		var data []byte
 		for _, x := range ts {
@@ -262,7 +263,7 @@ func stBuild(t *testing.T, m *Model, edit stEdit) []byte {
 		meta[MetaChecksum] = "sha256:" + hex.EncodeToString(sum[:])
 	}
 	var buf bytes.Buffer
-	if err := EncodeContainer(&buf, meta, ts); err != nil {
+	if err := safetensors.Encode(&buf, meta, ts); err != nil {
 		t.Fatal(err)
 	}
 	return buf.Bytes()
@@ -546,7 +547,7 @@ func TestSaveRejects(t *testing.T) {
 	}
 	m = stModel(t, 5, 0, "")
 	m.Convs[1].B = m.Convs[1].B[:2]
-	if err := m.Save(path, SaveOptions{}); !errors.Is(err, ErrShape) && !errors.Is(err, ErrSchema) {
+	if err := m.Save(path, SaveOptions{}); !errors.Is(err, safetensors.ErrShape) && !errors.Is(err, ErrSchema) {
 		t.Errorf("saving a short bias: %v", err)
 	}
 	if ents, _ := os.ReadDir(dir); len(ents) != 0 {
@@ -566,7 +567,7 @@ func TestOpenErrors(t *testing.T) {
 		err  error
 	}{
 		{filepath.Join(dir, "missing.safetensors"), os.ErrNotExist},
-		{empty, ErrTooShort},
+		{empty, safetensors.ErrTooShort},
 		{dir, nil}, // a directory: any error, naming it
 	}
 	for _, tt := range tests {

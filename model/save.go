@@ -5,7 +5,6 @@ import (
 	"cmp"
 	"crypto/rand"
 	"crypto/sha256"
-	"encoding/binary"
 	"encoding/hex"
 	"encoding/json"
 	"errors"
@@ -18,7 +17,8 @@ import (
 	"path/filepath"
 	"strconv"
 	"strings"
-	"unsafe"
+
+	"convtag/model/safetensors"
 )
 
 // SaveOptions say what Encode and Save record besides the model. The zero
@@ -44,19 +44,19 @@ func (m *Model) Encode(w io.Writer, o SaveOptions) error {
 	if err != nil {
 		return err
 	}
-	return EncodeContainer(w, meta, tensors)
+	return fromContainer(safetensors.Encode(w, meta, tensors))
 }
 
 // container returns the model's metadata and tensors, ready to encode and
 // checked against the schema.
-func (m *Model) container(o SaveOptions) (map[string]string, []Tensor, error) {
+func (m *Model) container(o SaveOptions) (map[string]string, []safetensors.Tensor, error) {
 	if m.Vocab == nil {
 		return nil, nil, fmt.Errorf("model: encode: no vocabulary")
 	}
 	tensors := m.tensors()
 	for _, t := range tensors {
-		if n, ok := byteSize(t.Shape, DTypeSize(t.DType)); !ok || n != uint64(len(t.Data)) {
-			return nil, nil, formatErr(t.Name, ErrShape, "%d bytes do not fill %s %v", len(t.Data), t.DType, t.Shape)
+		if n, ok := safetensors.ByteSize(t.DType, t.Shape); !ok || n != uint64(len(t.Data)) {
+			return nil, nil, formatErr(t.Name, safetensors.ErrShape, "%d bytes do not fill %s %v", len(t.Data), t.DType, t.Shape)
 		}
 	}
 	meta := maps.Clone(m.Meta)
@@ -76,6 +76,9 @@ func (m *Model) container(o SaveOptions) (map[string]string, []Tensor, error) {
 	delete(meta, MetaScorer)
 	if m.Scorer.kind() != ScoreNetwork {
 		meta[MetaScorer] = encodeScorer(m.Scorer)
+	}
+	if err := m.putMulti(meta); err != nil {
+		return nil, nil, err
 	}
 	h := sha256.New()
 	for _, t := range tensors {
@@ -97,49 +100,59 @@ func (m *Model) container(o SaveOptions) (map[string]string, []Tensor, error) {
 // tensors lists the model's tensors in file order (see Encode). Data views
 // the model's slices on a little-endian host and is a converted copy
 // otherwise.
-func (m *Model) tensors() []Tensor {
+func (m *Model) tensors() []safetensors.Tensor {
 	d, f := m.Config.Dim, m.Config.Filters
-	var ts []Tensor
-	add := func(name, dtype string, data []byte, shape ...int) {
-		ts = append(ts, Tensor{Name: name, DType: dtype, Shape: shape, Data: data})
+	var ts []safetensors.Tensor
+	add := func(name string, dtype safetensors.DType, data []byte, shape ...int) {
+		ts = append(ts, safetensors.Tensor{Name: name, DType: dtype, Shape: shape, Data: data})
 	}
 	v := m.Vocab
-	add(TensorVocabOffsets, "I64", rawBytes(v.offs), len(v.offs))
-	add(TensorEmbedding, "F32", rawBytes(m.Emb), len(m.Emb)/max(d, 1), d)
+	add(TensorVocabOffsets, "I64", safetensors.Bytes(v.offs), len(v.offs))
+	// The linear baseline's arrays go with the others of their element
+	// size, so every tensor stays aligned (the n-grams last, with the other
+	// bytes); a model without one is laid out as before.
+	lm := m.Linear
+	if lm != nil {
+		add(TensorLinearOffsets, "I64", safetensors.Bytes(lm.Offsets), len(lm.Offsets))
+	}
+	add(TensorEmbedding, "F32", safetensors.Bytes(m.Emb), len(m.Emb)/max(d, 1), d)
 	for i, c := range m.Convs {
-		add(ConvWeightName(i), "F32", rawBytes(c.W), f, d, c.Width)
-		add(ConvBiasName(i), "F32", rawBytes(c.B), len(c.B))
+		add(ConvWeightName(i), "F32", safetensors.Bytes(c.W), f, d, c.Width)
+		add(ConvBiasName(i), "F32", safetensors.Bytes(c.B), len(c.B))
 	}
 	if h := m.Hidden; h != nil {
-		add(TensorHiddenW, "F32", rawBytes(h.W), h.Out, h.In)
-		add(TensorHiddenB, "F32", rawBytes(h.B), len(h.B))
+		add(TensorHiddenW, "F32", safetensors.Bytes(h.W), h.Out, h.In)
+		add(TensorHiddenB, "F32", safetensors.Bytes(h.B), len(h.B))
 	}
-	add(TensorOutputW, "F32", rawBytes(m.Out.W), m.Out.Out, m.Out.In)
-	add(TensorOutputB, "F32", rawBytes(m.Out.B), len(m.Out.B))
+	add(TensorOutputW, "F32", safetensors.Bytes(m.Out.W), m.Out.Out, m.Out.In)
+	add(TensorOutputB, "F32", safetensors.Bytes(m.Out.B), len(m.Out.B))
+	if lm != nil {
+		add(TensorLinearWeights, "F32", safetensors.Bytes(lm.Weights), lm.Len(), lm.Labels())
+		add(TensorLinearIDF, "F32", safetensors.Bytes(lm.IDF), len(lm.IDF))
+		add(TensorLinearBias, "F32", safetensors.Bytes(lm.Bias), len(lm.Bias))
+	}
 	foldShape := func(ft FoldTable, n int) []int {
 		return []int{n / max(ft.Width*f, 1), ft.Width, f}
 	}
 	for i, ft := range m.Fold {
 		if ft.F16 == nil {
-			add(FoldName(i), "F32", rawBytes(ft.F32), foldShape(ft, len(ft.F32))...)
+			add(FoldName(i), "F32", safetensors.Bytes(ft.F32), foldShape(ft, len(ft.F32))...)
 		}
 	}
-	add(TensorVocabIndex, "I32", rawBytes(v.index), len(v.index))
+	add(TensorVocabIndex, "I32", safetensors.Bytes(v.index), len(v.index))
+	if lm != nil {
+		add(TensorLinearIndex, "I32", safetensors.Bytes(lm.Index), len(lm.Index))
+	}
 	for i, ft := range m.Fold {
 		if ft.F16 != nil {
-			add(FoldName(i), "F16", rawBytes(ft.F16), foldShape(ft, len(ft.F16))...)
+			add(FoldName(i), "F16", safetensors.Bytes(ft.F16), foldShape(ft, len(ft.F16))...)
 		}
 	}
 	add(TensorVocabBytes, "U8", v.blob, len(v.blob))
 	if len(m.Baseline) > 0 {
 		add(TensorBaseline, "U8", m.Baseline, len(m.Baseline))
 	}
-	if lm := m.Linear; lm != nil {
-		add(TensorLinearOffsets, "I64", rawBytes(lm.Offsets), len(lm.Offsets))
-		add(TensorLinearWeights, "F32", rawBytes(lm.Weights), lm.Len(), lm.Labels())
-		add(TensorLinearIDF, "F32", rawBytes(lm.IDF), len(lm.IDF))
-		add(TensorLinearBias, "F32", rawBytes(lm.Bias), len(lm.Bias))
-		add(TensorLinearIndex, "I32", rawBytes(lm.Index), len(lm.Index))
+	if lm != nil {
 		add(TensorLinearGrams, "U8", lm.Grams, len(lm.Grams))
 	}
 	return ts
@@ -338,17 +351,4 @@ func (m *Model) checkLarge() error {
 		}
 	}
 	return nil
-}
-
-// rawBytes gives a slice's little-endian bytes: a view on a little-endian
-// host, a converted copy otherwise.
-func rawBytes[T float32 | int32 | int64 | uint16](v []T) []byte {
-	if len(v) == 0 {
-		return []byte{}
-	}
-	if littleEndian {
-		return unsafe.Slice((*byte)(unsafe.Pointer(&v[0])), len(v)*int(unsafe.Sizeof(v[0])))
-	}
-	b, _ := binary.Append(nil, binary.LittleEndian, v) // fixed-size elements: cannot fail
-	return b
 }

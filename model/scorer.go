@@ -63,6 +63,9 @@ func (s Scorer) check(m *Model) error {
 	case ScoreNetwork:
 		return nil
 	case ScoreBaseline, ScoreCombined:
+		if m.Multi {
+			return fmt.Errorf("model: scorer %q is for single-label models; a multi-label model scores with its network", s.kind())
+		}
 		if m.Linear == nil {
 			return fmt.Errorf("model: scorer %q needs the linear baseline, which this model file does not hold", s.kind())
 		}

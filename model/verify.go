@@ -10,7 +10,7 @@ import (
 // tables) folded, on a few probe texts: an empty text, the first, a middle
 // and the last vocabulary word, an unknown word (the first bucket row) and
 // all of them in a row. Every probability must be finite and in [0, 1] and
-// they must sum to 1 within probeTolerance. Weights that are each finite
+// (single-label) they must sum to 1 within probeTolerance. Weights that are each finite
 // can still overflow a dot product (3e38 × 2 is +Inf), and then softmax
 // gives NaN, which eval cannot measure and tag cannot rank.
 func (m *Model) checkProbes() error {
@@ -51,7 +51,7 @@ func (m *Model) checkProbes() error {
 				}
 				sum += float64(v)
 			}
-			if math.Abs(sum-1) > tol {
+			if !m.Multi && math.Abs(sum-1) > tol {
 				return formatErr("", ErrForward, "%s (%s path) gives probabilities summing to %v", pr.name, path, sum)
 			}
 		}

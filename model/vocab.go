@@ -85,9 +85,12 @@ func (v *Vocab) Word(i int) []byte {
 }
 
 // Lookup returns the word index of tok, or -1 when tok is unknown.
-func (v *Vocab) Lookup(tok []byte) int {
+func (v *Vocab) Lookup(tok []byte) int { return v.lookup(tok, Hash(tok)) }
+
+// lookup is Lookup with tok's Hash h already computed.
+func (v *Vocab) lookup(tok []byte, h uint64) int {
 	mask := uint64(len(v.index) - 1)
-	s := Hash(tok) & mask
+	s := h & mask
 	for range v.index { // bounded: a crafted index may have no empty slot
 		e := v.index[s]
 		if e == 0 {
@@ -105,10 +108,13 @@ func (v *Vocab) Lookup(tok []byte) int {
 // Row returns the embedding row of tok: its own row when known, else its
 // bucket's.
 func (v *Vocab) Row(tok []byte) int32 {
-	if i := v.Lookup(tok); i >= 0 {
+	// One hash picks both the index slot and, for an unknown word, the
+	// bucket.
+	h := Hash(tok)
+	if i := v.lookup(tok, h); i >= 0 {
 		return int32(i + 1)
 	}
-	return int32(1 + v.Len() + int(Hash(tok)%uint64(v.buckets)))
+	return int32(1 + v.Len() + int(h%uint64(v.buckets)))
 }
 
 // tensors returns the vocabulary's three tensors' raw little-endian bytes.

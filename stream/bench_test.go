@@ -50,12 +50,14 @@ func BenchmarkFindPath(b *testing.B) {
 
 func BenchmarkSplice(b *testing.B) {
 	rec, _, _ := nextLine(benchBlock, 0)
+	var s scanner
+	s.validObject(rec)
 	var sp splicer
 	dst := make([]byte, 0, 1024)
 	b.SetBytes(int64(len(rec)))
 	b.ReportAllocs()
 	for b.Loop() {
-		dst = sp.splice(dst[:0], rec, testFields)
+		dst = sp.splice(dst[:0], rec, s.members, testFields)
 	}
 }
 

@@ -15,7 +15,7 @@ type config struct {
 	o                                   Options
 	textKeys                            []string // Options.TextKeys or the default
 	sep                                 byte     // CSV or TSV separator; 0 for lines
-	tagKey, confKey                     field    // names and encoded keys; values unused
+	tagKey, confKey, tagsKey            field    // names and encoded keys; values unused
 	scoresKey, topKey, whyKey, knownKey field
 	unsure                              string
 	jobs, blockSize, maxLine            int
@@ -48,6 +48,7 @@ func newConfig(o Options) (*config, error) {
 		return field{name: name, key: appendString(nil, []byte(name))}
 	}
 	c.tagKey = mk(o.TagKey, "tag")
+	c.tagsKey = mk(o.TagsKey, "tags")
 	c.confKey = mk(o.ConfidenceKey, "confidence")
 	c.scoresKey = mk(o.ScoresKey, "scores")
 	c.topKey = mk(o.TopKey, "top")
@@ -70,6 +71,10 @@ func newConfig(o Options) (*config, error) {
 		if slices.Contains(used[:i], k) {
 			return nil, fmt.Errorf("stream: key %q used twice", k)
 		}
+	}
+	// A MultiTagger's records get the tags key instead of the tag key.
+	if slices.Contains(used[1:], c.tagsKey.name) {
+		return nil, fmt.Errorf("stream: key %q used twice", c.tagsKey.name)
 	}
 	c.topTagKey = append(append([]byte{'{'}, c.tagKey.key...), ':')
 	c.topConfKeyBytes = append(append([]byte{','}, c.confKey.key...), ':')
@@ -128,7 +133,11 @@ type taggerState struct {
 	labels    []string  // the Tagger's labels, then the unsure tag
 	labelJSON [][]byte  // each of labels as a JSON string
 	selected  []bool    // each of labels: written (Keep/Drop)
-	minConf   []float64 // each of the Tagger's labels: its minimum confidence
+	minConf   []float64 // each of the Tagger's labels: its minimum confidence (multi: its threshold)
+	// multi: a MultiTagger; inKeep and inDrop say, per label, whether
+	// Keep and Drop list it.
+	multi          bool
+	inKeep, inDrop []bool
 }
 
 func newTaggerState(t Tagger, c *config) *taggerState {
@@ -138,14 +147,43 @@ func newTaggerState(t Tagger, c *config) *taggerState {
 		ts.labelJSON = append(ts.labelJSON, appendString(nil, []byte(l)))
 		ts.selected = append(ts.selected, c.selects(l))
 	}
-	for _, l := range ts.labels[:len(ts.labels)-1] {
+	var stored []float64
+	if mt, ok := t.(MultiTagger); ok {
+		stored = mt.Thresholds()
+	}
+	ts.multi = stored != nil
+	for i, l := range ts.labels[:len(ts.labels)-1] {
 		v, ok := c.o.MinConfidenceFor[l]
-		if !ok {
+		switch {
+		case ok:
+		case ts.multi && c.minConf == 0 && i < len(stored):
+			v = stored[i]
+		default:
 			v = c.minConf
 		}
 		ts.minConf = append(ts.minConf, v)
 	}
+	for _, l := range ts.labels {
+		ts.inKeep = append(ts.inKeep, c.keep[l])
+		ts.inDrop = append(ts.inDrop, c.drop[l])
+	}
 	return ts
+}
+
+// selectsSet reports whether a MultiTagger's record with the tags set
+// (indices into labels; none means the unsure tag) is written.
+func (ts *taggerState) selectsSet(c *config, set []int) bool {
+	if len(set) == 0 {
+		return ts.selected[len(ts.labels)-1]
+	}
+	keep := c.keep == nil
+	for _, l := range set {
+		if ts.inDrop[l] {
+			return false
+		}
+		keep = keep || ts.inKeep[l]
+	}
+	return keep
 }
 
 // selects reports whether a record with tag (or "" for an untagged one) is

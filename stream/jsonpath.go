@@ -35,17 +35,24 @@ type syntaxError struct {
 	msg string
 }
 
-// scanner validates JSON. Its stack is reused between records; one scanner
-// belongs to one goroutine.
+// scanner validates JSON. Its stack and member list are reused between
+// records; one scanner belongs to one goroutine.
 type scanner struct {
 	stack []byte // '{' or '[' per open container
+	// members are the top-level members of the object the last successful
+	// validObject checked, in order: the finder and the splicer read them
+	// instead of walking the object again.
+	members []member
 }
 
 // validObject reports whether b (one record, without its line terminator)
 // is exactly one valid JSON object, optionally surrounded by whitespace, as
 // RFC 8259 defines it. Like encoding/json.Valid it does not check that
-// strings are valid UTF-8. On failure it says where and why.
+// strings are valid UTF-8. On failure it says where and why. On success
+// s.members holds the object's top-level members, valid until the next
+// call.
 func (s *scanner) validObject(b []byte) (bool, syntaxError) {
+	s.members = s.members[:0]
 	i := skipSpace(b, 0)
 	if i >= len(b) || b[i] != '{' {
 		return false, syntaxError{i, "record is not a JSON object"}
@@ -59,6 +66,9 @@ func (s *scanner) validObject(b []byte) (bool, syntaxError) {
 			if i >= len(b) {
 				return false, syntaxError{i, "unexpected end of record"}
 			}
+			if len(st) == 1 {
+				s.members[len(s.members)-1].valStart = i
+			}
 			switch c := b[i]; {
 			case c == '{':
 				st = append(st, '{')
@@ -70,7 +80,7 @@ func (s *scanner) validObject(b []byte) (bool, syntaxError) {
 					break
 				}
 				var e syntaxError
-				if i, e = objectKey(b, i); e.msg != "" {
+				if i, e = s.key(b, i, len(st) == 1); e.msg != "" {
 					return false, e
 				}
 				continue
@@ -116,6 +126,9 @@ func (s *scanner) validObject(b []byte) (bool, syntaxError) {
 			wantValue = false
 		}
 		// After a value.
+		if len(st) == 1 {
+			s.members[len(s.members)-1].valEnd = i
+		}
 		i = skipSpace(b, i)
 		if len(st) == 0 {
 			if i != len(b) {
@@ -132,7 +145,7 @@ func (s *scanner) validObject(b []byte) (bool, syntaxError) {
 			i++
 			if top == '{' {
 				var e syntaxError
-				if i, e = objectKey(b, skipSpace(b, i)); e.msg != "" {
+				if i, e = s.key(b, skipSpace(b, i), len(st) == 1); e.msg != "" {
 					return false, e
 				}
 			}
@@ -146,14 +159,18 @@ func (s *scanner) validObject(b []byte) (bool, syntaxError) {
 	}
 }
 
-// objectKey checks `"key" :` at b[i:] and returns the offset after the colon.
-func objectKey(b []byte, i int) (int, syntaxError) {
+// key checks `"key" :` at b[i:] and returns the offset after the colon;
+// a key of the top-level object (top) starts a new entry of s.members.
+func (s *scanner) key(b []byte, i int, top bool) (int, syntaxError) {
 	if i >= len(b) || b[i] != '"' {
 		return i, syntaxError{i, "expected a string key"}
 	}
 	end, ok := stringEnd(b, i)
 	if !ok {
 		return i, syntaxError{i, "bad string"}
+	}
+	if top {
+		s.members = append(s.members, member{keyStart: i, keyEnd: end})
 	}
 	i = skipSpace(b, end)
 	if i >= len(b) || b[i] != ':' {
@@ -341,6 +358,22 @@ func keyIs(raw []byte, name string, scratch []byte) (bool, []byte) {
 	}
 	scratch = appendUnescaped(scratch[:0], inner)
 	return string(scratch) == name, scratch
+}
+
+// findMember is findPath for a top-level object whose members validObject
+// listed: the first segment is looked up among members (the first match
+// wins, as in findPath), the rest by findPath from that value.
+func findMember(b []byte, members []member, path []string, scratch []byte) (start, end int, ok bool, _ []byte) {
+	for _, m := range members {
+		var is bool
+		if is, scratch = keyIs(b[m.keyStart:m.keyEnd], path[0], scratch); is {
+			if len(path) == 1 {
+				return m.valStart, m.valEnd, true, scratch
+			}
+			return findPath(b, m.valStart, path[1:], scratch)
+		}
+	}
+	return 0, 0, false, scratch
 }
 
 // findPath returns the span of the value at path inside the valid JSON value

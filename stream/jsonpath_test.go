@@ -48,6 +48,9 @@ func TestValidObjectMatchesEncodingJSON(t *testing.T) {
 		if got != want {
 			t.Errorf("validObject(%.60q) = %v, encoding/json says %v", c, got, want)
 		}
+		if got {
+			checkMembers(t, []byte(c), s.members)
+		}
 	}
 }
 
@@ -147,6 +150,16 @@ func checkPath(t *testing.T, b []byte, p string) {
 	t.Helper()
 	segs := strings.Split(p, ".")
 	start, end, ok, _ := findPath(b, skipSpace(b, 0), segs, nil)
+	// The finder looks the first segment up among the members validObject
+	// listed: it must find the same span as the walk from the start.
+	var sc scanner
+	if valid, _ := sc.validObject(b); valid {
+		checkMembers(t, b, sc.members)
+		ms, me, mok, _ := findMember(b, sc.members, segs, nil)
+		if mok != ok || mok && (ms != start || me != end) {
+			t.Errorf("%s in %.80q: findMember gives [%d,%d) %v, findPath [%d,%d) %v", p, b, ms, me, mok, start, end, ok)
+		}
+	}
 	want, wantOK := refPath(b, segs)
 	if ok != wantOK {
 		t.Errorf("%s in %.80q: found %v, encoding/json says %v", p, b, ok, wantOK)
@@ -223,6 +236,24 @@ func TestAppendStringMatchesEncodingJSON(t *testing.T) {
 	}
 }
 
+// checkMembers checks the members validObject listed for the valid object
+// b against a walk of b by nextMember, member by member.
+func checkMembers(t *testing.T, b []byte, members []member) {
+	t.Helper()
+	var walked []member
+	for i := skipSpace(b, 0) + 1; ; {
+		m, next, more := nextMember(b, i)
+		if !more {
+			break
+		}
+		walked = append(walked, m)
+		i = next
+	}
+	if !reflect.DeepEqual(members, walked) && !(len(members) == 0 && len(walked) == 0) {
+		t.Errorf("%.80q: validObject lists members %v, a walk finds %v", b, members, walked)
+	}
+}
+
 func FuzzValidObject(f *testing.F) {
 	for _, c := range jsonCases {
 		f.Add([]byte(c))
@@ -234,6 +265,9 @@ func FuzzValidObject(f *testing.F) {
 		want := json.Valid(b) && len(trimmed) > 0 && trimmed[0] == '{'
 		if got != want && !(bytes.Count(b, []byte("["))+bytes.Count(b, []byte("{")) > 10000) {
 			t.Fatalf("validObject(%q) = %v (%+v), encoding/json says %v", b, got, e, want)
+		}
+		if got {
+			checkMembers(t, b, s.members)
 		}
 	})
 }

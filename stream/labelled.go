@@ -61,6 +61,10 @@ type LabelledOptions struct {
 	// strings (several tags), or a number (taken as its JSON spelling).
 	// Empty means "label".
 	LabelKey string
+	// EmptyTags keeps a JSON record whose label is an empty array (a
+	// multi-label record with no tag) as a record with no Labels; without
+	// it such a record is skipped (ErrNoLabel).
+	EmptyTags bool
 	// Report caps the Problems kept; 0 means 5, negative none.
 	Report int
 	// Stdin is read for the file name "-"; nil means os.Stdin.
@@ -70,7 +74,7 @@ type LabelledOptions struct {
 // Labelled is one usable record.
 type Labelled struct {
 	Text   string
-	Labels []string // at least one; single-label training uses Labels[0]
+	Labels []string // at least one (none only under EmptyTags); single-label training uses Labels[0]
 	File   string
 	Line   int64
 }
@@ -81,14 +85,19 @@ type LabelledSet struct {
 	Skipped  int            // records without usable text or label, or malformed
 	Blank    int            // empty lines, which are not records
 	Multi    int            // records with more than one label
+	Arrays   int            // records whose label is a JSON array (of any length)
+	NoTags   int            // records kept with an empty array under EmptyTags
 	Problems []*RecordError // the first few skipped records, with why
 }
 
-// Counts returns the number of records per first label.
+// Counts returns the number of records per first label (records without
+// a label are not counted).
 func (s *LabelledSet) Counts() map[string]int {
 	c := map[string]int{}
 	for _, r := range s.Records {
-		c[r.Labels[0]]++
+		if len(r.Labels) > 0 {
+			c[r.Labels[0]]++
+		}
 	}
 	return c
 }
@@ -200,7 +209,15 @@ func (r *labelReader) record(rec *Record) {
 		labels, err = columnLabel(rec.Label)
 	default:
 		text = string(rec.Text)
-		labels, err = r.jsonLabels(rec.JSON)
+		var array bool
+		labels, array, err = r.jsonLabels(rec.JSON)
+		if array && (err == nil || errors.Is(err, ErrNoLabel) && r.opt.EmptyTags) {
+			r.set.Arrays++
+		}
+		if array && errors.Is(err, ErrNoLabel) && r.opt.EmptyTags {
+			labels, err = []string{}, nil
+			r.set.NoTags++
+		}
 	}
 	if err != nil {
 		r.problem(&RecordError{File: rec.File, Line: rec.Line, Err: err})
@@ -251,13 +268,15 @@ func checkLabel(l string) error {
 }
 
 // jsonLabels finds the label of a JSON record (a valid object).
-func (r *labelReader) jsonLabels(obj []byte) ([]string, error) {
+// array reports whether the value is a JSON array.
+func (r *labelReader) jsonLabels(obj []byte) (labels []string, array bool, err error) {
 	s, e, ok, scratch := findPath(obj, skipSpace(obj, 0), r.label, r.scratch)
 	r.scratch = scratch
 	if !ok {
-		return nil, ErrNoLabel
+		return nil, false, ErrNoLabel
 	}
-	return decodeLabels(obj[s:e])
+	labels, err = decodeLabels(obj[s:e])
+	return labels, obj[s] == '[', err
 }
 
 // decodeLabels reads a label value: a string, a number (its spelling) or

@@ -177,3 +177,41 @@ func FuzzReadLabelled(f *testing.F) {
 		}
 	})
 }
+
+// TestReadLabelledTagArrays: arrays are counted (for train's automatic
+// multi-label mode) and, under EmptyTags, an empty array is a record with
+// no tag; without it, it is a record without a label, as before.
+func TestReadLabelledTagArrays(t *testing.T) {
+	in := `{"text":"refund the cancelled boat","label":["tickets","schedule"]}
+{"text":"nice sunset","label":[]}
+{"text":"lost a scarf","label":"lost-and-found"}
+{"text":"no label at all"}
+{"text":"one in an array","label":[ "praise" ]}
+`
+	path := filepath.Join(t.TempDir(), "tags.jsonl")
+	if err := os.WriteFile(path, []byte(in), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	for _, empty := range []bool{false, true} {
+		set, err := ReadLabelled([]string{path}, LabelledOptions{EmptyTags: empty})
+		if err != nil {
+			t.Fatal(err)
+		}
+		var got [][]string
+		for _, r := range set.Records {
+			got = append(got, r.Labels)
+		}
+		want := [][]string{{"tickets", "schedule"}, {"lost-and-found"}, {"praise"}}
+		wantArrays, wantSkipped, wantNone := 2, 2, 0
+		if empty {
+			want = [][]string{{"tickets", "schedule"}, {}, {"lost-and-found"}, {"praise"}}
+			wantArrays, wantSkipped, wantNone = 3, 1, 1
+		}
+		if !reflect.DeepEqual(got, want) || set.Arrays != wantArrays || set.Skipped != wantSkipped || set.NoTags != wantNone || set.Multi != 1 {
+			t.Errorf("EmptyTags %v: labels %q, arrays %d, skipped %d, no tags %d, multi %d", empty, got, set.Arrays, set.Skipped, set.NoTags, set.Multi)
+		}
+		if c := set.Counts(); c["tickets"] != 1 || len(c) != 3 {
+			t.Errorf("counts %v", c)
+		}
+	}
+}

@@ -141,6 +141,14 @@ type Options struct {
 	// header's names included (a header that has either already is an
 	// error).
 	TagKey, ConfidenceKey string
+	// TagsKey ("tags") names the key of a MultiTagger's tags: an array of
+	// the labels that pass, highest probability first, empty when none
+	// does; ConfidenceKey then holds an object of those labels'
+	// probabilities. For text lines written as TSV the first column is
+	// the tags joined with commas (empty when none) and the second their
+	// probabilities, joined the same way; for CSV and TSV input the two
+	// added columns are the same (the first named TagsKey).
+	TagsKey string
 	// Scores adds an object of every label's probability under ScoresKey
 	// ("scores"); Top > 0 adds the Top best labels, best first, as an
 	// array of {tag, confidence} objects under TopKey ("top"). Both apply
@@ -172,11 +180,17 @@ type Options struct {
 	// above 1 tags every record of that label unsure (for a label whose
 	// target precision was never reached). Names the Tagger lacks are
 	// ignored (a reloaded model may have other labels).
+	//
+	// With a MultiTagger they replace its thresholds: MinConfidenceFor[L]
+	// for L, else MinConfidence when above 0, else the stored threshold.
 	MinConfidenceFor map[string]float64
 	UnsureTag        string
 	// Keep, when not empty, writes only records whose tag is in it; Drop
 	// leaves out records whose tag is in it. A record passed through
-	// untagged has no tag: Keep leaves it out, Drop keeps it.
+	// untagged has no tag: Keep leaves it out, Drop keeps it. With a
+	// MultiTagger a record matches when any of its tags is listed; one
+	// with no tag matches UnsureTag (and is counted under it in Stats.Tags,
+	// where each record counts once for each of its tags).
 	Keep, Drop []string
 	Emit       Emit
 

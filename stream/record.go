@@ -131,9 +131,8 @@ func (f *textFinder) find(line []byte) found {
 	f.text = f.text[:0]
 	text := f.text[:0]
 	has, badPath := false, -1
-	start := skipSpace(obj, 0)
 	for p, path := range f.paths {
-		s, e, ok, key := findPath(obj, start, path, f.key)
+		s, e, ok, key := findMember(obj, f.scan.members, path, f.key)
 		f.key = key
 		if !ok {
 			continue

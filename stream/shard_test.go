@@ -249,3 +249,141 @@ func TestZstdShardsJoinToTheWhole(t *testing.T) {
 		t.Errorf("one frame: %v", err)
 	}
 }
+
+// randomShardFile is a random input: JSON and text records, blank and
+// CRLF lines, runs of newlines, now and then a record longer than many
+// parts, a BOM or no final newline.
+func randomShardFile(r *rand.Rand) []byte {
+	var b bytes.Buffer
+	if r.IntN(5) == 0 {
+		b.Write(bom)
+	}
+	for range r.IntN(120) {
+		switch r.IntN(9) {
+		case 0:
+			b.WriteString("\n")
+		case 1:
+			b.WriteString("{\"text\":\"crlf " + strings.Repeat("c", r.IntN(40)) + "\"}\r\n")
+		case 2:
+			b.WriteString(strings.Repeat("plain words ", r.IntN(10)) + "\n")
+		case 3:
+			if r.IntN(4) == 0 {
+				b.WriteString("{\"text\":\"" + strings.Repeat("long ", 200+r.IntN(2000)) + "\"}\n")
+			}
+		case 4:
+			b.WriteString("\r\n")
+		default:
+			fmt.Fprintf(&b, "{\"id\":%d,\"text\":\"%s\"}\n", r.IntN(1000), strings.Repeat("w", r.IntN(80)))
+		}
+	}
+	if r.IntN(3) == 0 {
+		b.WriteString("{\"text\":\"no final newline\"}")
+	}
+	return b.Bytes()
+}
+
+// checkShards checks the parts of the file at path (holding data) for N
+// parts against the rule and against one Run over the whole file (whole):
+// part K's bytes are exactly the records whose first byte lies in
+// [(K−1)·size/N, K·size/N) (a record starts at 0 and after each newline;
+// a BOM at the start is not part of the first record's bytes), and the
+// outputs of Run over parts 1..N, joined in order, are whole.
+func checkShards(t *testing.T, path string, data []byte, n int, opts Options, whole []byte) {
+	t.Helper()
+	size := int64(len(data))
+	starts := []int64{0}
+	for i, c := range data {
+		if c == '\n' && int64(i+1) < size {
+			starts = append(starts, int64(i+1))
+		}
+	}
+	var joined bytes.Buffer
+	for k := 1; k <= n; k++ {
+		lo, hi := (int64(k)-1)*size/int64(n), int64(k)*size/int64(n)
+		var want []byte
+		for i, s := range starts {
+			if s >= lo && s < hi && size > 0 {
+				end := size
+				if i+1 < len(starts) {
+					end = starts[i+1]
+				}
+				want = append(want, data[s:end]...)
+			}
+		}
+		if lo == 0 {
+			want = bytes.TrimPrefix(want, bom)
+		}
+		in, err := openShard(path, Shard{k, n})
+		if err != nil {
+			t.Fatalf("%d/%d: %v", k, n, err)
+		}
+		got, err := io.ReadAll(in.r)
+		in.closer()
+		if err != nil || !bytes.Equal(got, want) {
+			t.Fatalf("%d/%d of %d bytes: %q, want %q (%v)", k, n, size, got, want, err)
+		}
+		o := opts
+		o.Shard = Shard{k, n}
+		if _, err := Run(context.Background(), o, []string{path}, nil, &joined); err != nil {
+			t.Fatalf("%d/%d: %v", k, n, err)
+		}
+	}
+	if !bytes.Equal(joined.Bytes(), whole) {
+		t.Fatalf("N=%d, %d bytes: joined parts differ from the whole run (%d vs %d bytes)", n, size, joined.Len(), len(whole))
+	}
+}
+
+// TestShardProperty: for random files and every N from 1 to 64, the parts
+// follow the rule and join to the whole run (checkShards).
+func TestShardProperty(t *testing.T) {
+	dir := t.TempDir()
+	r := rand.New(rand.NewPCG(17, 64))
+	files := 8
+	if testing.Short() {
+		files = 2
+	}
+	for i := range files {
+		data := randomShardFile(r)
+		path := filepath.Join(dir, fmt.Sprintf("f%d.jsonl", i))
+		if err := os.WriteFile(path, data, 0o644); err != nil {
+			t.Fatal(err)
+		}
+		opts := Options{Tagger: nullTagger{}, Jobs: 1 + i%4/3*2, BlockSize: 512 << (i % 4)}
+		var whole bytes.Buffer
+		if _, err := Run(context.Background(), opts, []string{path}, nil, &whole); err != nil {
+			t.Fatal(err)
+		}
+		for n := 1; n <= 64; n++ {
+			checkShards(t, path, data, n, opts, whole.Bytes())
+		}
+	}
+}
+
+// FuzzShard: any bytes, cut into any number of parts up to 64, follow the
+// rule and join to the whole run (checkShards).
+func FuzzShard(f *testing.F) {
+	f.Add([]byte("a\nbb\n\nccc"), uint8(3))
+	f.Add([]byte("{\"text\":\"x\"}\r\n\r\n{\"text\":\"y\"}\n"), uint8(7))
+	f.Add(append(append([]byte{}, bom...), "x\ny\n"...), uint8(2))
+	f.Add([]byte("\n\n\n\n"), uint8(63))
+	f.Add([]byte(strings.Repeat("z", 5000)+"\nq\n"), uint8(9))
+	dir := f.TempDir()
+	f.Fuzz(func(t *testing.T, data []byte, n uint8) {
+		if len(data) > 1<<16 {
+			return
+		}
+		path := filepath.Join(dir, "in.txt")
+		if err := os.WriteFile(path, data, 0o644); err != nil {
+			t.Fatal(err)
+		}
+		if len(data) >= 4 && (bytes.HasPrefix(data, []byte{0x1f, 0x8b}) || bytes.HasPrefix(data, []byte{0x28, 0xb5, 0x2f, 0xfd}) || bytes.HasPrefix(data, []byte("BZh"))) {
+			return // compressed: refused or cut at frames, checked elsewhere
+		}
+		opts := Options{Tagger: nullTagger{}, Jobs: 1, BlockSize: 256}
+		var whole bytes.Buffer
+		if _, err := Run(context.Background(), opts, []string{path}, nil, &whole); err != nil {
+			return // input the whole run refuses is not a sharding question
+		}
+		checkShards(t, path, data, 1+int(n)%64, opts, whole.Bytes())
+	})
+}

@@ -20,23 +20,18 @@ type splicer struct {
 	scratch []byte
 }
 
-// splice appends to dst the record rec, a valid JSON object (see
-// scanner.validObject) with optional surrounding whitespace, with every field
-// set: a top-level key that is already there (every occurrence, when the
+// splice appends to dst the record rec, a valid JSON object with optional
+// surrounding whitespace whose top-level members are members (as
+// scanner.validObject lists them), with every field set: a top-level key that is already there (every occurrence, when the
 // object repeats it) keeps its place and spelling and gets the new value;
 // the others are added, in order, right after the last member's value (after
 // the '{' of an empty object), so whitespace before the closing brace and
 // after it stays where it was. All other bytes are copied unchanged. At most
 // 64 fields.
-func (sp *splicer) splice(dst, rec []byte, fields []field) []byte {
-	i := skipSpace(rec, 0) + 1 // after '{'
-	insert := i
+func (sp *splicer) splice(dst, rec []byte, members []member, fields []field) []byte {
+	insert := skipSpace(rec, 0) + 1 // after '{'
 	sp.repl = sp.repl[:0]
-	for {
-		m, next, more := nextMember(rec, i)
-		if !more {
-			break
-		}
+	for _, m := range members {
 		for f := range fields {
 			var is bool
 			if is, sp.scratch = keyIs(rec[m.keyStart:m.keyEnd], fields[f].name, sp.scratch); is {
@@ -45,7 +40,6 @@ func (sp *splicer) splice(dst, rec []byte, fields []field) []byte {
 			}
 		}
 		insert = m.valEnd
-		i = next
 	}
 	var present uint64
 	prev := 0

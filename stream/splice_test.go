@@ -64,7 +64,7 @@ func TestSpliceGolden(t *testing.T) {
 		if ok, e := s.validObject(rec); !ok {
 			t.Fatalf("%s: test record invalid: %+v", c.name, e)
 		}
-		got := sp.splice(nil, rec, testFields)
+		got := sp.splice(nil, rec, s.members, testFields)
 		g.WriteString("# " + c.name + "\n" + c.rec + "\n" + string(got) + "\n")
 		t.Run(c.name, func(t *testing.T) { checkSpliced(t, rec, got, "tag", "confidence") })
 	}
@@ -145,7 +145,7 @@ func FuzzSplice(f *testing.F) {
 		if ok, _ := s.validObject(rec); !ok {
 			return
 		}
-		out := sp.splice(nil, rec, fields)
+		out := sp.splice(nil, rec, s.members, fields)
 		if ok, e := s.validObject(out); !ok {
 			t.Fatalf("%q -> %q: invalid (%+v)", rec, out, e)
 		}

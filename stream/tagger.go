@@ -43,3 +43,13 @@ type KnownCounter interface {
 	WordCounter
 	Known() int
 }
+
+// MultiTagger is a Tagger of several tags per record: a record gets every
+// label whose probability reaches that label's threshold, in order of
+// probability (highest first), or none. Thresholds are aligned with
+// Labels; a nil result makes the Tagger single-label after all.
+// Options.MinConfidenceFor (and a MinConfidence above 0) override them.
+type MultiTagger interface {
+	Tagger
+	Thresholds() []float64
+}

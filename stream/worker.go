@@ -23,6 +23,9 @@ type worker struct {
 	share  float32      // the last text's share of known words; -1 when unknown
 	kc     KnownCounter // sc, when it can count known words; else nil
 	passOK bool         // untagged records are written
+	set    []int        // a MultiTagger's tags for the last record, best first
+	joined []byte       // scratch: the tags or their probabilities joined with commas
+	tagsV  []byte       // the tags array's bytes (fields[0].val may alias labelJSON, never written)
 }
 
 func newWorker(c *config) *worker {
@@ -52,6 +55,10 @@ func (w *worker) process(b *block) {
 		w.sc = w.ts.t.NewScorer()
 		w.wc, _ = w.sc.(WordCounter)
 		w.kc, _ = w.sc.(KnownCounter)
+		w.fields[0] = w.cfg.tagKey
+		if w.ts.multi {
+			w.fields[0] = w.cfg.tagsKey
+		}
 	}
 	if n := len(w.ts.labels); cap(b.tags) < n {
 		b.tags = make([]int64, n)
@@ -148,7 +155,7 @@ func (w *worker) rows(b *block) {
 				return
 			}
 			b.out = append(b.out, rec...)
-			b.out = appendCSVField(append(b.out, sep), []byte(w.cfg.tagKey.name), sep)
+			b.out = appendCSVField(append(b.out, sep), []byte(w.fields[0].name), sep)
 			b.out = appendCSVField(append(b.out, sep), []byte(w.cfg.confKey.name), sep)
 			b.out = append(b.out, term...)
 			b.n.written++
@@ -177,6 +184,13 @@ func (w *worker) row(b *block, rec, term []byte) {
 	w.setFields(tag)
 	sep := w.cfg.sep
 	b.out = append(b.out, rec...)
+	if w.ts.multi {
+		b.out = appendCSVField(append(b.out, sep), w.joinTags(), sep)
+		b.out = appendCSVField(append(b.out, sep), w.joinConfs(), sep)
+		b.out = append(b.out, term...)
+		b.n.written++
+		return
+	}
 	b.out = appendCSVField(append(b.out, sep), []byte(w.ts.labels[tag]), sep)
 	b.out = append(append(b.out, sep), w.fields[1].val...)
 	b.out = append(b.out, term...)
@@ -242,7 +256,7 @@ func (w *worker) jsonRecord(b *block, line, term []byte, r *found) {
 	}
 	w.setFields(tag)
 	b.out = append(b.out, line[:r.lead]...)
-	b.out = w.sp.splice(b.out, obj, w.fields)
+	b.out = w.sp.splice(b.out, obj, w.find.scan.members, w.fields)
 	b.out = append(b.out, term...)
 	b.n.written++
 }
@@ -274,6 +288,10 @@ func (w *worker) textRecord(b *block, line, term []byte) {
 			b.out = append(append(append(append(b.out, ','), f.key...), ':'), f.val...)
 		}
 		b.out = append(b.out, '}')
+	} else if w.ts.multi {
+		b.out = append(append(b.out, w.joinTags()...), '\t')
+		b.out = append(append(b.out, w.joinConfs()...), '\t')
+		b.out = append(b.out, line...)
 	} else {
 		b.out = append(b.out, w.ts.labels[tag]...)
 		b.out = append(b.out, '\t')
@@ -317,6 +335,9 @@ func (w *worker) score(b *block, text []byte) (int, bool) {
 		}
 	}
 	w.best = best
+	if w.ts.multi {
+		return w.scoreMulti(b)
+	}
 	tag := best
 	if n == 0 || float64(probs[best]) < w.ts.minConf[best] {
 		tag = len(w.ts.labels) - 1
@@ -329,14 +350,85 @@ func (w *worker) score(b *block, text []byte) (int, bool) {
 	return tag, true
 }
 
-// setFields fills the values of w.fields for tag from w.probs.
+// scoreMulti picks a MultiTagger's tags from w.probs: every label at or
+// above its threshold, highest probability first (ties in label order).
+func (w *worker) scoreMulti(b *block) (int, bool) {
+	w.set = w.set[:0]
+	for l, p := range w.probs {
+		if float64(p) >= w.ts.minConf[l] {
+			w.set = append(w.set, l)
+		}
+	}
+	// Insertion sort, stable: labels are few.
+	for i := 1; i < len(w.set); i++ {
+		for j := i; j > 0 && w.probs[w.set[j]] > w.probs[w.set[j-1]]; j-- {
+			w.set[j], w.set[j-1] = w.set[j-1], w.set[j]
+		}
+	}
+	unsure := len(w.ts.labels) - 1
+	if len(w.set) == 0 {
+		b.tags[unsure]++
+	}
+	for _, l := range w.set {
+		b.tags[l]++
+	}
+	if !w.ts.selectsSet(w.cfg, w.set) {
+		b.n.dropped++
+		return unsure, false
+	}
+	return unsure, true
+}
+
+// joinTags returns the last record's tags joined with commas (the scratch
+// w.joined, valid until joinConfs or the next record).
+func (w *worker) joinTags() []byte {
+	v := w.joined[:0]
+	for k, l := range w.set {
+		if k > 0 {
+			v = append(v, ',')
+		}
+		v = append(v, w.ts.labels[l]...)
+	}
+	w.joined = v
+	return v
+}
+
+// joinConfs returns the probabilities of the last record's tags, in the
+// order of joinTags, joined with commas.
+func (w *worker) joinConfs() []byte {
+	v := w.joined[:0]
+	for k, l := range w.set {
+		if k > 0 {
+			v = append(v, ',')
+		}
+		v = appendConf(v, w.probs[l])
+	}
+	w.joined = v
+	return v
+}
+
+// setFields fills the values of w.fields for tag from w.probs (for a
+// MultiTagger, from w.set).
 func (w *worker) setFields(tag int) {
 	conf := float32(0)
 	if len(w.probs) > 0 {
 		conf = w.probs[w.best]
 	}
-	w.fields[0].val = w.ts.labelJSON[tag]
-	w.fields[1].val = appendConf(w.fields[1].val[:0], conf)
+	if w.ts.multi {
+		v, c := append(w.tagsV[:0], '['), append(w.fields[1].val[:0], '{')
+		for k, l := range w.set {
+			if k > 0 {
+				v, c = append(v, ','), append(c, ',')
+			}
+			v = append(v, w.ts.labelJSON[l]...)
+			c = appendConf(append(append(c, w.ts.labelJSON[l]...), ':'), w.probs[l])
+		}
+		w.tagsV = append(v, ']')
+		w.fields[0].val, w.fields[1].val = w.tagsV, append(c, '}')
+	} else {
+		w.fields[0].val = w.ts.labelJSON[tag]
+		w.fields[1].val = appendConf(w.fields[1].val[:0], conf)
+	}
 	i := 2
 	if w.cfg.o.Scores {
 		v := append(w.fields[i].val[:0], '{')

@@ -4,7 +4,9 @@ Reads a JSON file (argv[1]) with a network's weights in convtag's tensor
 names and layouts (embedding [rows, d], convs.i.weight [F, d, w] as
 torch.nn.Conv1d, convs.i.bias, optional hidden.weight/bias, output.weight
 [C, in], output.bias), a batch of examples (embedding rows and a label) and
-optional class weights. Builds the network of model/CONTRACT (right zero
+optional class weights. With "multi": true each example has "tags" (label
+indices) and the loss is torch.nn.BCEWithLogitsLoss(pos_weight=class
+weights, reduction="mean") on the multi-hot targets instead. Builds the network of model/CONTRACT (right zero
 padding of w-1 positions, ReLU, max over time, concatenation, optional ReLU
 hidden layer, linear output) with torch.nn.functional in float64 on the
 given float32 values, takes the weighted mean cross-entropy of
@@ -56,6 +58,19 @@ def main():
             z = F.relu(F.linear(z, hidden[0], hidden[1]))
         logits.append(F.linear(z, ow, ob))
     logits = torch.cat(logits, dim=0)
+    if inp.get("multi"):
+        target = torch.zeros_like(logits)
+        for i, ex in enumerate(inp["examples"]):
+            for t in ex.get("tags") or []:
+                target[i, t] = 1
+        pw = None
+        if inp.get("class_weights"):
+            pw = torch.tensor(inp["class_weights"], dtype=dt)
+        loss = torch.nn.BCEWithLogitsLoss(pos_weight=pw)(logits, target)
+        loss.backward()
+        out = {"loss": loss.item(), "grads": {k: v.grad.reshape(-1).tolist() for k, v in params.items()}}
+        json.dump(out, sys.stdout)
+        return
     labels = torch.tensor([ex["label"] for ex in inp["examples"]], dtype=torch.long)
     weight = None
     if inp.get("class_weights"):

@@ -17,9 +17,10 @@ var fixedValues = map[string]map[string][]string{
 		"progress": {"auto", "on", "off"},
 	},
 	"train": {
-		"format":        {"jsonl", "csv", "tsv", "label-tab-text"},
-		"optimizer":     {"adadelta", "adam"},
-		"class-weights": {"none", "balanced"},
+		"format":               {"jsonl", "csv", "tsv", "label-tab-text"},
+		"optimizer":            {"adadelta", "adam"},
+		"class-weights":        {"none", "balanced"},
+		"label-threshold-goal": {"f1", "precision:0.9"},
 	},
 	"eval": {
 		"format":        {"jsonl", "csv", "tsv", "label-tab-text"},

@@ -79,10 +79,20 @@ lists); they apply only with --folds.
 Records whose label the model does not know are counted and left out of the
 figures. Records with several labels are scored on the first.
 
+On a multi-label model (train --multi-label) each tag is judged on its
+own at the tag threshold stored in the model: micro- and macro-averaged
+precision, recall and F1, the share of records whose whole tag set is
+right, the Hamming loss (share of record-tag pairs wrong), a per-tag table
+with support and average precision, per-tag threshold tables, and with
+--target-precision the lowest threshold per tag (tag --min-confidence
+TAG=P, or --thresholds FILE). --baseline-train FILE fits a one-vs-rest
+naive-Bayes baseline; --json adds each tag's precision-recall curve.
+
 ` + exitHelp,
 		Example: `  convtag eval -m ferry.safetensors testdata/demo/dev.jsonl
   convtag eval -m ferry.safetensors --target-precision 0.95 --plots plots/ dev.jsonl
   convtag eval -m ferry.safetensors --json dev.jsonl | jq .macro_f1
+  convtag eval -m desks.safetensors --target-precision 0.9 --baseline-train testdata/demo/multi-train.jsonl testdata/demo/multi-dev.jsonl
   convtag eval --folds 10 --epochs 10 --format label-tab-text sentences.txt`,
 		Args: cobra.ArbitraryArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
@@ -148,6 +158,9 @@ func (f *evalFlags) check(cmd *cobra.Command, args []string) error {
 		return usageErr("convtag eval --folds 10 FILE", "eval: --folds trains its own models; leave out -m")
 	case f.baselineTrain != "" || f.plots != "" || f.target != 0:
 		return usageErr("convtag eval --folds 10 FILE", "eval: --baseline-train, --plots and --target-precision do not apply with --folds")
+	}
+	if err := f.train.r.Check(); err != nil {
+		return usageErr("convtag eval --help (the recipe's flags)", "eval: %w", err)
 	}
 	t := f.train
 	t.output, t.format = "-", stream.LabelledJSONL
@@ -358,6 +371,9 @@ func runEval(a *app, f *evalFlags, args []string) error {
 	name := f.model
 	if name == "" {
 		name = builtin.Name
+	}
+	if m.Multi {
+		return runEvalMulti(a, f, args, m, name)
 	}
 	set, err := f.labelled(a, args)
 	if err != nil {

@@ -10,6 +10,7 @@ import (
 	"testing"
 
 	"convtag/model"
+	"convtag/model/safetensors"
 	"convtag/model/token"
 )
 
@@ -42,7 +43,7 @@ func poisonFold(t *testing.T, path string) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	_, tensors, err := model.ParseContainer(b)
+	_, tensors, err := safetensors.Parse(b)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -185,13 +186,13 @@ func TestInspectVerify(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	meta, tensors, err := model.ParseContainer(b)
+	meta, tensors, err := safetensors.Parse(b)
 	if err != nil {
 		t.Fatal(err)
 	}
 	meta[model.MetaTokenizer] = `{"keep_punct":false,"max_tokens":1073741824,"no_placeholders":false}`
 	var buf bytes.Buffer
-	if err := model.EncodeContainer(&buf, meta, tensors); err != nil {
+	if err := safetensors.Encode(&buf, meta, tensors); err != nil {
 		t.Fatal(err)
 	}
 	if err := os.WriteFile(huge, buf.Bytes(), 0o644); err != nil {

@@ -48,7 +48,7 @@ if $programname == "ferry-desk" then {
 
 // tool finds a program on PATH or in dirs. Under CI=true a missing one
 // fails the test; elsewhere the test is skipped.
-func tool(t *testing.T, name, pkg string, dirs ...string) string {
+func tool(t testing.TB, name, pkg string, dirs ...string) string {
 	t.Helper()
 	if p, err := exec.LookPath(name); err == nil {
 		return p
@@ -85,7 +85,7 @@ func ferryMessage(i int) string {
 var severities = [][2]string{{"user.info", "info"}, {"user.notice", "notice"}, {"user.warning", "warning"}, {"user.err", "err"}}
 
 type rsyslogChain struct {
-	t       *testing.T
+	t       testing.TB
 	dir     string
 	logger  string
 	cmd     *exec.Cmd
@@ -96,11 +96,17 @@ type rsyslogChain struct {
 }
 
 func startRsyslog(t *testing.T, rsyslogd, logger, bin, model string) *rsyslogChain {
+	return startRsyslogConf(t, rsyslogConf, rsyslogd, logger, bin, model)
+}
+
+// startRsyslogConf starts rsyslogd -n on conf, with {{DIR}}, {{BIN}} and
+// {{MODEL}} replaced, and waits for its socket.
+func startRsyslogConf(t testing.TB, conf, rsyslogd, logger, bin, model string) *rsyslogChain {
 	dir := t.TempDir()
 	if err := os.Mkdir(filepath.Join(dir, "work"), 0o755); err != nil {
 		t.Fatal(err)
 	}
-	conf := strings.NewReplacer("{{DIR}}", dir, "{{BIN}}", bin, "{{MODEL}}", model).Replace(rsyslogConf)
+	conf = strings.NewReplacer("{{DIR}}", dir, "{{BIN}}", bin, "{{MODEL}}", model).Replace(conf)
 	confPath := filepath.Join(dir, "rsyslog.conf")
 	if err := os.WriteFile(confPath, []byte(conf), 0o644); err != nil {
 		t.Fatal(err)

@@ -16,7 +16,7 @@ func TestManPages(t *testing.T) {
 	if code, _, errs := runCmd(t, "", "man", dir); code != exitOK {
 		t.Fatalf("man: exit %d: %s", code, errs)
 	}
-	for _, c := range []string{"", "-tag", "-train", "-eval", "-inspect", "-embed", "-version"} {
+	for _, c := range []string{"", "-tag", "-train", "-eval", "-inspect", "-embed", "-join", "-version"} {
 		if _, err := os.Stat(filepath.Join(dir, "convtag"+c+".1")); err != nil {
 			t.Errorf("no page for convtag%s: %v", c, err)
 		}

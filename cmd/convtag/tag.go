@@ -14,6 +14,7 @@ import (
 	"sort"
 	"strings"
 	"syscall"
+	"time"
 
 	"github.com/spf13/cobra"
 
@@ -74,6 +75,7 @@ func newTagCmd(a *app) *cobra.Command {
 		o                                                            stream.Options
 		strict, showStats                                            bool
 		why                                                          int
+		cf                                                           confirmFlags
 	)
 	c := &cobra.Command{
 		Use:   "tag [flags] [FILE...]",
@@ -112,7 +114,15 @@ it out. Records that cannot be tagged pass through unchanged and are counted
 boolean, array or object, a line longer than 64 MiB. Empty and blank lines
 and JSON records without the text key pass through unchanged; when none of
 the first 1,000 JSON records has the key, one warning names the keys they
-have. With --keep, untagged records are left out too. --scores, --top and
+have. With --keep, untagged records are left out too.
+
+On a multi-label model (train --multi-label) a record gets "tags" (key
+--tags-key): every tag whose probability reaches the tag's threshold stored
+in the model, highest first, or [] when none does, and the confidence key
+holds those tags' probabilities; --min-confidence TAG=P replaces a stored
+threshold. --keep and --drop match a record when any of its tags is listed
+(one with no tag matches the --unsure-tag). Text written as TSV, and CSV or
+TSV records, get the tags and their probabilities joined with commas. --scores, --top and
 --why go into JSON output only: with --format text they need --emit jsonl;
 with --format auto, text lines written as TSV go without them.
 
@@ -126,6 +136,13 @@ says so. FILE thus appears at the end: for a live stream give --append,
 which writes in place. A .gz or .zst FILE to --append to must decode to its
 end (a killed run may have cut it); otherwise nothing is written, exit 1.
 A standard output closed at the start (>&-) is an error, exit 1.
+
+--confirm (with --append -o FILE) is for rsyslog's omprog with
+confirmMessages="on": standard output then carries only the protocol's
+replies (OK once ready; OK per message, or OK and DEFER_COMMIT within
+useTransactions, each after the record is written to FILE; an "error: ..."
+line when a write fails, so rsyslog sends the message again). --fsync syncs
+FILE before each confirmation.
 
 Without -m, tag uses the built-in model: a demonstration (positive or
 negative sentiment, trained on product, film and restaurant reviews), not
@@ -147,7 +164,8 @@ a same-size overwrite would switch the model in the middle of a block.
 		Example: `  convtag tag chat.jsonl > tagged.jsonl
   zstd -dc archive.jsonl.zst | convtag tag -m ferry.safetensors --keep schedule
   convtag tag --format text --emit jsonl notes.txt
-  tail -F service.log | convtag tag -k msg --min-confidence 0.6 --append -o tagged.jsonl.gz`,
+  tail -F service.log | convtag tag -k msg --min-confidence 0.6 --append -o tagged.jsonl.gz
+  convtag tag -m desks.safetensors --min-confidence spam=0.9 --keep tickets,praise testdata/demo/chat.jsonl`,
 		RunE: func(cmd *cobra.Command, args []string) error {
 			var err error
 			if rule, err = parseMinConfidence(minConf); err != nil {
@@ -167,6 +185,9 @@ a same-size overwrite would switch the model in the middle of a block.
 				}
 			}
 			if err := checkTagFlags(&o, format, emit, compress, progress, output, why, textKeys); err != nil {
+				return err
+			}
+			if err := cf.check(&o, args, output, progress, shard != ""); err != nil {
 				return err
 			}
 			if err := tagColumns(&o, textKeys, textColumns, why); err != nil {
@@ -214,7 +235,14 @@ a same-size overwrite would switch the model in the middle of a block.
 				unchanged = append(unchanged, leftMessage(output, existed(output)))
 			}
 			var rej *stream.OutputFile
-			if rejects != "" {
+			if rejects != "" && cf.on {
+				f, err := cf.openRejects(rejects)
+				if err != nil {
+					return withCode(exitFailure, err)
+				}
+				defer f.Close()
+				o.Rejects = f
+			} else if rejects != "" {
 				rejExisted := existed(rejects)
 				if rej, err = stream.CreateOutputFile(rejects); err != nil {
 					return withCode(exitFailure, fmt.Errorf("--rejects: %w", err))
@@ -264,13 +292,24 @@ a same-size overwrite would switch the model in the middle of a block.
 				o.Progress = bar.update
 			}
 
-			st, err := stream.Run(ctx, o, args, a.stdin, a.stdout)
+			started, inputBytes := time.Now(), int64(0)
+			if o.Shard.N > 0 {
+				if fi, err := os.Stat(args[0]); err == nil {
+					inputBytes = fi.Size()
+				}
+			}
+			var st stream.Stats
+			if cf.on {
+				st, err = cf.run(ctx, a, o)
+			} else {
+				st, err = stream.Run(ctx, o, args, a.stdin, a.stdout)
+			}
 			if bar != nil {
 				bar.end(st, err == nil)
 			}
 			if err == nil && o.Shard.N > 0 && output != "" && output != "-" {
 				// Written last: a part whose stats file exists is done.
-				err = writeShardStats(output+".stats.json", args[0], o.Shard, st)
+				err = writeShardStats(output, args[0], inputBytes, started, o.Shard, st)
 			}
 			if err == nil && rej != nil {
 				if err = rej.Commit(); err != nil {
@@ -316,6 +355,7 @@ a same-size overwrite would switch the model in the middle of a block.
 	f.StringArrayVar(&textColumns, "text-column", nil, "csv/tsv: header name of the text column; repeat to join several with a space (default text)")
 	f.StringVar(&o.TagKey, "tag-key", "tag", "key of the added tag (for csv/tsv: the name of the added column)")
 	f.StringVar(&o.ConfidenceKey, "confidence-key", "confidence", "key of the added confidence (rounded to 4 decimals)")
+	f.StringVar(&o.TagsKey, "tags-key", "tags", "multi-label model: key of the added array of tags (for csv/tsv: the name of the added column)")
 	f.BoolVar(&o.Scores, "scores", false, `add every label's probability as an object under "scores" (JSON output)`)
 	f.IntVar(&o.Top, "top", 0, `add the N best labels, best first, as an array under "top" (JSON output)`)
 	f.IntVar(&why, "why", 0, `add the N word windows that weighed most for the tag, as an array under "why" (JSON output)`)
@@ -336,6 +376,7 @@ a same-size overwrite would switch the model in the middle of a block.
 	f.BoolVar(&strict, "strict", false, "exit with status 3 at the end if any record was rejected")
 	f.StringVar(&progress, "progress", "auto", "progress bar on stderr (bytes read of the inputs' size, records, records/s): auto (when stderr is a terminal and the input size is known), on or off")
 	f.BoolVar(&showStats, "stats", false, "print a closing summary on stderr")
+	cf.flags(f)
 	return c
 }
 
@@ -403,6 +444,9 @@ func checkTagFlags(o *stream.Options, format, emit, compress, progress, output s
 	// The keys added to every record; none may be empty or another's.
 	type key struct{ flag, name string }
 	keys := []key{{"--tag-key", o.TagKey}, {"--confidence-key", o.ConfidenceKey}}
+	if o.TagsKey != o.TagKey {
+		keys = append(keys, key{"--tags-key", o.TagsKey})
+	}
 	if o.Scores {
 		keys = append(keys, key{"--scores", "scores"})
 	}

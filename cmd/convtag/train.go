@@ -4,8 +4,10 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"io"
 	"os"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"time"
 
@@ -29,6 +31,10 @@ type trainFlags struct {
 	r      train.Recipe
 	quiet  bool
 	dimSet bool
+	// multi is --multi-label; multiSet whether it was given (else the
+	// mode follows the data: arrays as labels mean multi-label).
+	multi, multiSet bool
+	goal            string // --label-threshold-goal
 }
 
 func newTrainCmd(a *app) *cobra.Command {
@@ -40,8 +46,7 @@ func newTrainCmd(a *app) *cobra.Command {
 
 Records are JSON Lines, the text under --text-key (a dotted path; repeat the
 flag to join several values with a space) and the tag under --label-key (a
-string, or an array of strings for records with several tags: training uses
-the first and says how many had more). --format csv and --format tsv read
+string, or an array of strings for records with several tags). --format csv and --format tsv read
 RFC 4180 records after a header row (TSV: tabs between the fields, the
 same quoting), the text in the --text-column columns and the label in
 --label-column; a header is never trained on, and one that lacks a named
@@ -57,6 +62,18 @@ network is the one in README.md: embeddings, convolutions of --widths with
 Kim (2014), "Convolutional Neural Networks for Sentence Classification":
 widths 3,4,5 with 100 filters, dropout 0.5, max-norm 3 on the output rows,
 mini-batches of 50, Adadelta (rho 0.95, eps 1e-6), 25 epochs.
+
+Multi-label: with --multi-label, or on its own when some record's label is
+a JSON array (said on stderr; --multi-label=false trains on each record's
+first tag instead), the network has one sigmoid output per tag, trained
+with binary cross-entropy, and a record gets every tag whose probability
+reaches that tag's threshold, or none ("label": [] is a record with no
+tag). Each tag's threshold is chosen on the dev records and stored in the
+model: the one with the best F1 (--label-threshold-goal f1), or the lowest
+whose precision reaches P and stays there above it (precision:P); a tag
+without dev records keeps 0.5. --class-weights balanced weights each
+tag's positive records by its negatives/positives. CSV, TSV and
+label-tab-text records have one tag each; multi-label data is JSON Lines.
 
 Beside the network, a naive-Bayes classifier on lowercase unigrams and
 bigrams is trained on the same records, and both dev accuracies are printed
@@ -81,10 +98,12 @@ finish, and the run ends as usual.
 		Example: `  convtag train -o ferry.safetensors testdata/demo/train.jsonl --dev testdata/demo/dev.jsonl
   convtag train -o m.safetensors --format tsv --text-column message --label-column queue --epochs 10 tickets.tsv.gz
   convtag train -o m.safetensors --text-key msg.subject --text-key msg.body --label-key tags chat.jsonl
+  convtag train -o desks.safetensors --multi-label --label-threshold-goal precision:0.9 testdata/demo/multi-train.jsonl
   convtag train -o ferry.safetensors --intended-use 'routing help-chat lines to a desk' --not-for 'any decision about the writer' train.jsonl`,
 		Args: cobra.ArbitraryArgs,
 		RunE: func(cmd *cobra.Command, args []string) error {
 			f.dimSet = cmd.Flags().Changed("vector-size")
+			f.multiSet = cmd.Flags().Changed("multi-label")
 			f.noteChanged(cmd.Flags())
 			return runTrain(a, &f, args)
 		},
@@ -99,6 +118,8 @@ finish, and the run ends as usual.
 	fl.BoolVar(&f.r.NoFold, "no-fold", false, "do not write the folded table (smaller file, slower tagging)")
 	fl.BoolVar(&f.r.FoldHalf, "fold-half", false, "store the folded table in half precision (half the size)")
 	fl.BoolVarP(&f.quiet, "quiet", "q", false, "no progress on stderr")
+	fl.BoolVar(&f.multi, "multi-label", false, "several tags per record (one sigmoid per tag); the default when labels are arrays")
+	fl.StringVar(&f.goal, "label-threshold-goal", "f1", "multi-label: each tag's stored threshold maximises its dev F1 (f1), or is the lowest reaching dev precision P (precision:P)")
 	fl.StringVar(&f.r.Description, "description", "", "what the model tags and from what data, in a sentence or two (shown first by inspect)")
 	fl.StringVar(&f.r.IntendedUse, "intended-use", "", "what the model's tags are meant for (shown first by inspect)")
 	fl.StringVar(&f.r.NotFor, "not-for", "", "uses the model is not fit for (shown first by inspect)")
@@ -106,6 +127,7 @@ finish, and the run ends as usual.
 }
 
 func (f *trainFlags) check(args []string) error {
+	recipeErr := f.r.Check()
 	switch {
 	case f.output == "":
 		return usageErr("convtag train -o MODEL FILE...", "train: no output file (-o)")
@@ -115,16 +137,18 @@ func (f *trainFlags) check(args []string) error {
 		return f.labelledFlags.check("train")
 	case f.dev == "" && !(f.r.DevFraction > 0 && f.r.DevFraction < 1):
 		return usageErr("--dev-fraction 0.1, or --dev FILE", "train: --dev-fraction %g is not between 0 and 1", f.r.DevFraction)
-	case f.r.Epochs < 1 || f.r.Batch < 1 || f.r.Patience < 0 || f.r.Jobs < 0:
-		return usageErr("", "train: --epochs and --batch must be at least 1, --patience and --jobs at least 0")
-	case f.r.MinSeen < 1 || f.r.MaxWords < 0:
-		return usageErr("", "train: --min-seen must be at least 1 and --max-words at least 0")
-	case f.r.Optimizer != train.OptAdadelta && f.r.Optimizer != train.OptAdam:
-		return usageErr("--optimizer adadelta or --optimizer adam", "train: unknown --optimizer %q", f.r.Optimizer)
-	case f.r.ClassWeights != train.ClassWeightsNone && f.r.ClassWeights != train.ClassWeightsBalanced:
-		return usageErr("--class-weights none or --class-weights balanced", "train: unknown --class-weights %q", f.r.ClassWeights)
+	case recipeErr != nil:
+		return usageErr("convtag train --help (the recipe's flags)", "train: %w", recipeErr)
 	case f.r.Freeze && f.vectors == "":
 		return usageErr("--vectors FILE --freeze-vectors", "train: --freeze-vectors without --vectors")
+	}
+	g, err := train.ParseThresholdGoal(f.goal)
+	if err != nil {
+		return usageErr("--label-threshold-goal f1, or --label-threshold-goal precision:0.9", "train: %v", err)
+	}
+	f.r.ThresholdGoal = g
+	if f.multiSet && f.multi && f.format != stream.LabelledJSONL {
+		return usageErr("--format jsonl with an array of tags under --label-key", "train: --multi-label reads JSON Lines (--format %s has one tag per record)", f.format)
 	}
 	return nil
 }
@@ -149,19 +173,53 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 	}
 	warn := func(msg string) { fmt.Fprintf(a.stderr, "convtag: warning: %s\n", msg) }
 	ropt := f.options(a)
+	// Empty arrays are records with no tag, kept unless single-label was
+	// asked for; a single-label run drops them below, counted.
+	ropt.EmptyTags = !f.multiSet || f.multi
 	set, err := untilDone(ctx, func() (*stream.LabelledSet, error) { return readLabelled(a, args, ropt, "training") })
 	if err != nil {
 		return err
 	}
-	var dev []train.Record
+	var dset *stream.LabelledSet
 	var devFiles []string
 	if f.dev != "" {
 		devFiles = []string{f.dev}
-		dset, err := untilDone(ctx, func() (*stream.LabelledSet, error) { return readLabelled(a, devFiles, ropt, "dev") })
+		dset, err = untilDone(ctx, func() (*stream.LabelledSet, error) { return readLabelled(a, devFiles, ropt, "dev") })
 		if err != nil {
 			return err
 		}
-		dev = recipeRecords(dset.Records)
+	}
+	multi := f.multi
+	if !f.multiSet && set.Arrays > 0 {
+		multi = true
+		fmt.Fprintf(a.stderr, "convtag: %d training records have an array of tags: training a multi-label model (one sigmoid per tag; --multi-label=false for one tag per record)\n", set.Arrays)
+	}
+	var dev []train.Record
+	if !multi {
+		for _, s := range []*stream.LabelledSet{set, dset} {
+			if s == nil {
+				continue
+			}
+			what := "training"
+			if s == dset {
+				what = "dev"
+			}
+			if s.Multi > 0 {
+				fmt.Fprintf(a.stderr, "convtag: %d %s records have several labels; training uses the first of each\n", s.Multi, what)
+			}
+			if s.NoTags > 0 {
+				fmt.Fprintf(a.stderr, "convtag: %d %s records have an empty array of tags and are left out\n", s.NoTags, what)
+			}
+		}
+		set.Records = withTags(set.Records)
+		if len(set.Records) == 0 {
+			return withCode(exitFailure, fmt.Errorf("train: %w in %s", stream.ErrNoRecords, strings.Join(args, ", ")))
+		}
+		if dset != nil {
+			dev = recipeRecords(withTags(dset.Records))
+		}
+	} else if dset != nil {
+		dev = multiRecords(dset.Records)
 	}
 	r := f.r
 	if f.vectors != "" {
@@ -182,8 +240,9 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 		}
 		r.Dim, r.VectorsName = r.Vectors.Dim, filepath.Base(f.vectors)
 	}
-	if err := r.Config().Validate(); err != nil {
-		return usageErr("", "train: %w", err)
+	// The vectors may have changed the embedding size.
+	if err := r.Check(); err != nil {
+		return usageErr("convtag train --help (the recipe's flags)", "train: %w", err)
 	}
 	var bar *progressbar.ProgressBar
 	prog := train.Progress{Warn: warn, Info: say,
@@ -202,12 +261,24 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 			}
 			el := time.Duration(e.Elapsed * float64(time.Second))
 			left := time.Duration(float64(el) / float64(e.Epoch) * float64(r.Epochs-e.Epoch))
+			if multi {
+				say(fmt.Sprintf("epoch %d/%d  loss %.4f  train exact %.4f  dev loss %.4f  dev micro-F1 %.4f  macro-F1 %.4f (at 0.5)  %s tokens/s  elapsed %s  left <= %s",
+					e.Epoch, r.Epochs, e.Loss, e.TrainAcc, e.DevLoss, e.DevMicroF1, e.DevMacroF1, humanRate(float64(e.Tokens)/e.Seconds),
+					el.Round(time.Second), left.Round(time.Second)))
+				return
+			}
 			say(fmt.Sprintf("epoch %d/%d  loss %.4f  train %.4f  dev %.4f  dev macro-F1 %.4f  %s tokens/s  elapsed %s  left <= %s",
 				e.Epoch, r.Epochs, e.Loss, e.TrainAcc, e.DevAcc, e.DevMacroF1, humanRate(float64(e.Tokens)/e.Seconds),
 				el.Round(time.Second), left.Round(time.Second)))
 		},
 	}
-	m, sum, err := r.Fit(ctx, recipeRecords(set.Records), dev, prog)
+	var m *model.Model
+	var sum *train.Summary
+	if multi {
+		m, sum, err = r.FitMulti(ctx, multiRecords(set.Records), dev, prog)
+	} else {
+		m, sum, err = r.Fit(ctx, recipeRecords(set.Records), dev, prog)
+	}
 	if bar != nil {
 		bar.Finish()
 	}
@@ -221,7 +292,11 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 		return withCode(exitFailure, fmt.Errorf("train: %w", err))
 	}
 	// Said even with -q: it is what the file holds, not progress.
-	fmt.Fprintf(a.stderr, "convtag: baseline: naive Bayes, %s stored\n", humanBytes(len(m.Baseline)))
+	if multi {
+		fmt.Fprintf(a.stderr, "convtag: baseline: one-vs-rest naive Bayes, scored on dev, not stored\n")
+	} else {
+		fmt.Fprintf(a.stderr, "convtag: baseline: naive Bayes, %s stored\n", humanBytes(len(m.Baseline)))
+	}
 	if r.Description == "" && r.IntendedUse == "" && r.NotFor == "" {
 		fmt.Fprintln(a.stderr, "convtag: reminder: say what this model is for and not for (--description, --intended-use, --not-for); inspect shows them first")
 	}
@@ -241,7 +316,9 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 	}
 	w := a.stdout
 	net, bs := sum.Network, sum.Baseline
-	if sum.Records["dev"] > 0 {
+	if multi {
+		printMultiSummary(w, sum)
+	} else if sum.Records["dev"] > 0 {
 		fmt.Fprintf(w, "dev accuracy: network %.4f (macro-F1 %.4f, epoch %d of %d)   naive Bayes %.4f (macro-F1 %.4f)\n",
 			net.DevAccuracy, net.DevMacroF1, sum.BestEpoch, sum.EpochsRun, bs.DevAccuracy, bs.DevMacroF1)
 		if bs.DevAccuracy > net.DevAccuracy {
@@ -250,6 +327,52 @@ func runTrain(a *app, f *trainFlags, args []string) error {
 	}
 	fmt.Fprintf(w, "wrote %s (%d labels, %d words, %.1fs)\n", f.output, len(m.Labels), sum.Vocabulary, sum.Seconds)
 	return nil
+}
+
+// withTags returns the records that have a label (single-label training
+// leaves out those with an empty array of tags).
+func withTags(recs []stream.Labelled) []stream.Labelled {
+	out := recs[:0:0]
+	for _, r := range recs {
+		if len(r.Labels) > 0 {
+			out = append(out, r)
+		}
+	}
+	return out
+}
+
+// multiRecords gives each record's text and all its tags.
+func multiRecords(recs []stream.Labelled) []train.Record {
+	out := make([]train.Record, len(recs))
+	for i, r := range recs {
+		out[i] = train.Record{Text: r.Text, Tags: r.Labels}
+	}
+	return out
+}
+
+// printMultiSummary prints a multi-label run's dev figures at the stored
+// thresholds, the baseline's, and each tag's threshold.
+func printMultiSummary(w io.Writer, sum *train.Summary) {
+	net, bs := sum.Network, sum.Baseline
+	if sum.Records["dev"] > 0 {
+		fmt.Fprintf(w, "dev micro-F1: network %.4f (macro-F1 %.4f, exact sets %.4f, epoch %d of %d)   naive Bayes one-vs-rest %.4f (macro-F1 %.4f, exact sets %.4f)\n",
+			net.DevMicroF1, net.DevMacroF1, net.DevAccuracy, sum.BestEpoch, sum.EpochsRun, bs.DevMicroF1, bs.DevMacroF1, bs.DevAccuracy)
+		if bs.DevMicroF1 > net.DevMicroF1 {
+			fmt.Fprintf(w, "the baseline beats the network on these dev records\n")
+		}
+	}
+	fmt.Fprintf(w, "tag thresholds (%s on dev):", sum.Goal)
+	for _, t := range sum.Thresholds {
+		note := ""
+		switch {
+		case !t.Tuned:
+			note = " (no dev record: default)"
+		case sum.Goal != "f1" && !t.Reached:
+			note = " (goal not reached)"
+		}
+		fmt.Fprintf(w, " %s=%s%s", t.Label, strconv.FormatFloat(t.Threshold, 'g', -1, 64), note)
+	}
+	fmt.Fprintln(w)
 }
 
 // recipeRecords gives each record's text and first label.
@@ -291,9 +414,6 @@ func readLabelled(a *app, files []string, opt stream.LabelledOptions, what strin
 		}
 		if set.Skipped > 0 {
 			fmt.Fprintf(a.stderr, "convtag: %d %s records skipped (no text, no label or malformed)\n", set.Skipped, what)
-		}
-		if set.Multi > 0 {
-			fmt.Fprintf(a.stderr, "convtag: %d %s records have several labels; training uses the first of each\n", set.Multi, what)
 		}
 	}
 	if err != nil {

@@ -124,6 +124,7 @@ func TestTrainInputProblems(t *testing.T) {
 		{"no inputs", []string{"train", "-o", out}, exitUsage, []string{"no input files"}},
 		{"bad format", []string{"train", "-o", out, "--format", "yaml", bad}, exitUsage, []string{"--format"}},
 		{"bad weights", []string{"train", "-o", out, "--class-weights", "heavy", bad}, exitUsage, []string{"class-weights"}},
+		{"bad recipe before reading", []string{"train", "-o", out, "--learning-rate", "-1", filepath.Join(dir, "nope.jsonl")}, exitUsage, []string{"train: model: bad recipe: --learning-rate -1", "try: "}},
 		{"no records", []string{"train", "-o", out, bad}, exitFailure, []string{bad + ":1:", bad + ":2:", "2 training records skipped", "no usable labelled records in " + bad}},
 		{"missing file", []string{"train", "-o", out, filepath.Join(dir, "nope.jsonl")}, exitFailure, []string{"nope.jsonl"}},
 		{"label-tab-text, rare label", append(append([]string{"train", "-o", out, "--format", "label-tab-text", "--class-weights", "balanced"}, small...), tsv), exitOK, []string{`label "c" has fewer than 2 records`, tsv + ":6:", "1 training records skipped"}},

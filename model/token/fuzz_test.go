@@ -22,11 +22,13 @@ func FuzzTokenize(f *testing.F) {
 	f.Add([]byte("Hi, @orla: 10:30 https://ferry.example/x?y=1 (ok)."), uint8(1))
 	f.Add([]byte("mail desk@ferry.example"), uint8(2))
 	f.Add([]byte("a b c d e f g h"), uint8(3<<2))
+	f.Add([]byte("\x1b[1mprinter\x1b[0m \x1b]0;t\x07ok \x1b[1"), uint8(32))
 	f.Fuzz(func(t *testing.T, text []byte, flags uint8) {
 		set := Settings{
 			KeepPunct:      flags&1 != 0,
 			NoPlaceholders: flags&2 != 0,
 			MaxTokens:      int(flags >> 2 & 7), // 0: the default limit
+			DropEscapes:    flags&32 != 0,
 		}
 		tk := New(set)
 		orig := bytes.Clone(text)

@@ -16,7 +16,21 @@ type Settings struct {
 	// NoPlaceholders keeps URLs, e-mail addresses, handles and numbers as
 	// ordinary tokens instead of replacing them by placeholders.
 	NoPlaceholders bool `json:"no_placeholders"`
+	// DropEscapes removes terminal escape sequences before anything else:
+	// ECMA-48 control sequences (CSI: ESC "[" or U+009B, parameter bytes
+	// 0x30..0x3F, intermediate bytes 0x20..0x2F, a final byte 0x40..0x7E)
+	// and operating system commands (OSC: ESC "]" or U+009D, up to BEL,
+	// ESC "\" or U+009C), so "\x1b[1mprinter\x1b[0m" is "printer". A
+	// sequence that is cut off or holds a byte out of those ranges is
+	// kept as text. False in model files without the key (made before
+	// it existed), which keep their tokens; Defaults sets it for new
+	// models. omitempty keeps those files' metadata bytes as they were.
+	DropEscapes bool `json:"drop_escapes,omitempty"`
 }
+
+// Defaults are the settings of a new model: the zero Settings with
+// DropEscapes on.
+func Defaults() Settings { return Settings{DropEscapes: true} }
 
 // MaxTokensLimit is the largest max_tokens a model file may set: a
 // predictor sizes its buffers from it, so a file must not be able to ask

@@ -30,6 +30,8 @@ const (
 //
 // The steps, in order:
 //
+//  0. With Settings.DropEscapes, terminal escape sequences (ECMA-48 CSI
+//     and OSC, see Settings) are removed.
 //  1. Clean-up: every run of invalid UTF-8 bytes becomes one U+FFFD; the
 //     typographic apostrophes U+2018 and U+2019 become "'"; the
 //     characters that Unicode's NFKC_Casefold removes (default ignorables
@@ -119,6 +121,7 @@ type Tokens struct {
 	a, b, c, w []byte
 	spans      []span
 	iter       *norm.Iter
+	e          []byte // the text without its escape sequences (Settings.DropEscapes)
 }
 
 // Len is the number of tokens.
@@ -178,11 +181,16 @@ func (t *Tokenizer) chunkSizes() (int, int) {
 // run of ideographs without spaces or punctuation, a run of combining
 // marks without a starter) is normalised whole before it is cut.
 func (t *Tokenizer) Tokenize(ts *Tokens, text []byte) {
+	if t.s.DropEscapes && hasEscape(text) {
+		// The whole text, copied once; only texts with escapes pay.
+		ts.e = dropEscapes(ts.e[:0], text)
+		text = ts.e
+	}
 	if isASCII(text) {
 		t.tokenizeASCII(ts, text)
 		return
 	}
-	t.tokenizeGeneral(ts, text, cutHybrid)
+	t.tokenizeFast(ts, text)
 }
 
 // tokenizeASCII is the fast path for ASCII text.
@@ -207,8 +215,17 @@ func (t *Tokenizer) tokenizeASCII(ts *Tokens, text []byte) {
 // gives the same tokens.
 func (t *Tokenizer) tokenizeGeneral(ts *Tokens, text []byte, mode int) {
 	ts.Reset()
+	t.appendGeneral(ts, text, mode)
+}
+
+// appendGeneral is tokenizeGeneral without the Reset: it appends the
+// tokens of text to ts, up to the limit.
+func (t *Tokenizer) appendGeneral(ts *Tokens, text []byte, mode int) {
 	ts.a, ts.c, ts.w = ts.a[:0], ts.c[:0], ts.w[:0]
 	limit := t.s.Limit()
+	if ts.Len() >= limit {
+		return
+	}
 	chunk, most := t.chunkSizes()
 	for ts.Len() < limit {
 		n := len(text)
@@ -545,6 +562,7 @@ const (
 	cutASCII  = iota // asciiWord alone, for ASCII text
 	cutHybrid        // asciiWord where its decision sees only ASCII, else uniseg
 	cutUniseg        // uniseg alone: the reference the others are tested against
+	cutFast          // fastWord alone, for the fast path's checked pieces
 )
 
 // wordCutter cuts text into its UAX #29 word segments.
@@ -562,6 +580,12 @@ type wordCutter struct {
 func (w *wordCutter) next() ([]byte, int) {
 	if len(w.rest) == 0 {
 		return nil, segEnd
+	}
+	if w.mode == cutFast {
+		n, kind := fastWord(w.rest)
+		seg := w.rest[:n]
+		w.rest, w.state, w.lead = w.rest[n:], -1, 0
+		return seg, kind
 	}
 	if w.mode == cutASCII || w.mode == cutHybrid && w.rest[0] < utf8.RuneSelf {
 		n, kind := asciiWord(w.rest)

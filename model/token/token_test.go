@@ -329,6 +329,9 @@ func tokRefNormalize(text []byte) []byte {
 func tokRefTokenize(set Settings, text []byte) []string {
 	tk := New(set)
 	var ts Tokens
+	if set.DropEscapes {
+		text = dropEscapes(nil, text)
+	}
 	if isASCII(text) {
 		tk.tokenizeNormal(&ts, appendLowerASCII(nil, text), cutASCII)
 	} else {

@@ -77,6 +77,10 @@ type Recipe struct {
 
 	// The model card's words, stored in the summary.
 	Description, IntendedUse, NotFor string
+
+	// ThresholdGoal chooses a multi-label model's per-label thresholds
+	// (FitMulti); the zero value maximises each label's dev F1.
+	ThresholdGoal ThresholdGoal
 }
 
 // Defaults returns the recipe train runs without flags.
@@ -94,9 +98,11 @@ func (r Recipe) Config() model.Config {
 	return model.Config{Dim: r.Dim, Widths: r.Widths, Filters: r.Filters, Hidden: r.Hidden, Buckets: r.Buckets}
 }
 
-// Record is one labelled text.
+// Record is one labelled text. Fit reads Label; FitMulti reads Tags (none,
+// one or several labels).
 type Record struct {
 	Text, Label string
+	Tags        []string
 }
 
 // Progress receives what Fit has to say while it runs; a nil field is
@@ -125,12 +131,18 @@ func (p Progress) info(format string, v ...any) {
 type FewLabelsError struct{ Found int }
 
 func (e *FewLabelsError) Error() string {
-	return fmt.Sprintf("need at least 2 different labels, found %d", e.Found)
+	return fmt.Sprintf("model: need at least 2 different labels, found %d", e.Found)
 }
 
 // Summary is the training record stored under the model's "training"
 // metadata key (Store). It holds no times, so the file stays reproducible.
 type Summary struct {
+	// Mode is model.ModeMulti for a multi-label model (FitMulti), else empty.
+	Mode string `json:"mode,omitempty"`
+	// Thresholds: how a multi-label model's per-label thresholds were
+	// chosen on dev, and Goal the goal they were chosen for.
+	Thresholds []LabelThreshold `json:"label_thresholds,omitempty"`
+	Goal       string           `json:"label_threshold_goal,omitempty"`
 	// The model card's own words (Recipe.Description, IntendedUse, NotFor).
 	Description string `json:"description,omitempty"`
 	IntendedUse string `json:"intended_use,omitempty"`
@@ -176,6 +188,9 @@ type CurvePoint struct {
 type Scores struct {
 	DevAccuracy float64 `json:"dev_accuracy"`
 	DevMacroF1  float64 `json:"dev_macro_f1"`
+	// DevMicroF1 is the multi-label micro-averaged F1 (DevAccuracy is then
+	// the subset accuracy); 0 for single-label.
+	DevMicroF1 float64 `json:"dev_micro_f1,omitempty"`
 	// DevPerLabel is precision, recall, F1 and support per label on the
 	// dev records (the network's; empty without dev records).
 	DevPerLabel []metrics.LabelStats `json:"dev_per_label,omitempty"`
@@ -213,10 +228,10 @@ type tokenized struct {
 // table; its training metadata is not set: add Files and DevFiles to the
 // summary and Store it. Cancelling ctx stops training with ErrStopped.
 func (r Recipe) Fit(ctx context.Context, trainRecs, dev []Record, p Progress) (*model.Model, *Summary, error) {
-	if r.ClassWeights != "" && r.ClassWeights != ClassWeightsNone && r.ClassWeights != ClassWeightsBalanced {
-		return nil, nil, fmt.Errorf("unknown class weights %q (want %s or %s)", r.ClassWeights, ClassWeightsNone, ClassWeightsBalanced)
+	if err := r.Check(); err != nil {
+		return nil, nil, err
 	}
-	tok := token.New(token.Settings{})
+	tok := token.New(token.Defaults())
 	var ts token.Tokens
 	cut := func(recs []Record) []tokenized {
 		out := make([]tokenized, len(recs))
@@ -267,7 +282,7 @@ func (r Recipe) Fit(ctx context.Context, trainRecs, dev []Record, p Progress) (*
 	}
 	for _, t := range tr {
 		if _, ok := li[t.label]; !ok {
-			return nil, nil, fmt.Errorf("training record of label %q, not one of the recipe's labels", t.label)
+			return nil, nil, fmt.Errorf("model: training record of label %q, not one of the recipe's labels", t.label)
 		}
 	}
 	keptDev := dv[:0:0]
@@ -293,9 +308,9 @@ func (r Recipe) Fit(ctx context.Context, trainRecs, dev []Record, p Progress) (*
 	}
 	words := BuildWords(counts, r.MinSeen, r.MaxWords)
 	if r.Vectors != nil && r.Vectors.Dim != r.Dim {
-		return nil, nil, fmt.Errorf("embedding size %d but %s has %d-dimensional vectors", r.Dim, r.VectorsName, r.Vectors.Dim)
+		return nil, nil, fmt.Errorf("model: embedding size %d but %s has %d-dimensional vectors", r.Dim, r.VectorsName, r.Vectors.Dim)
 	}
-	m, err := model.New(r.Config(), token.Settings{}, labels, words, r.Seed)
+	m, err := model.New(r.Config(), token.Defaults(), labels, words, r.Seed)
 	if err != nil {
 		return nil, nil, err
 	}
@@ -365,7 +380,7 @@ func (r Recipe) Fit(ctx context.Context, trainRecs, dev []Record, p Progress) (*
 	}
 	base, err := nb.Fit(docs, ys, len(labels), 1)
 	if err != nil {
-		return nil, nil, fmt.Errorf("baseline: %w", err)
+		return nil, nil, fmt.Errorf("model: baseline: %w", err)
 	}
 	gold, pred := make([]int, len(dv)), make([]int, len(dv))
 	for i, t := range dv {

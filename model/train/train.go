@@ -46,10 +46,13 @@ const (
 
 // Example is one training or dev record: its embedding rows (as
 // Vocab.Row gives them; an empty list stands for one padding token) and the
-// index of its label in Model.Labels.
+// index of its label in Model.Labels. For a multi-label model (Model.Multi)
+// Tags lists the indices of all its labels instead (none, one or several,
+// each once) and Label is ignored.
 type Example struct {
 	Rows  []int32 `json:"rows"`
 	Label int     `json:"label"`
+	Tags  []int   `json:"tags,omitempty"`
 }
 
 // TrainOptions control Train. The zero value of a field means its default.
@@ -68,8 +71,14 @@ type TrainOptions struct {
 	// update; 0 means DefaultMaxNorm, a negative value no cap.
 	MaxNorm float64
 	// ClassWeights weight each label's loss (len(Labels) values); nil means
-	// all 1. BalancedWeights computes the usual "balanced" weights.
+	// all 1. BalancedWeights computes the usual "balanced" weights. For a
+	// multi-label model they weight each label's positive term of the
+	// binary cross-entropy (PyTorch's pos_weight); BalancedPositiveWeights
+	// computes them.
 	ClassWeights []float64
+	// ThresholdGoal is how a multi-label model's per-label thresholds are
+	// chosen on dev after training; the zero value maximises each label's F1.
+	ThresholdGoal ThresholdGoal
 	// Frozen marks embedding rows that are never updated (for example rows
 	// taken from a word-vector file); nil means none. Row 0 (padding) is
 	// never updated in any case.
@@ -97,6 +106,12 @@ type EpochStats struct {
 	TrainAcc   float64 `json:"train_accuracy"`
 	DevAcc     float64 `json:"dev_accuracy"`
 	DevMacroF1 float64 `json:"dev_macro_f1"`
+	// DevMicroF1 is the multi-label micro-averaged F1 at 0.5 and DevLoss
+	// the mean dev binary cross-entropy, on which a multi-label model's
+	// best epoch is chosen (both 0 for single-label; DevAcc is then the
+	// subset accuracy at 0.5).
+	DevMicroF1 float64 `json:"dev_micro_f1,omitempty"`
+	DevLoss    float64 `json:"dev_loss,omitempty"`
 	Tokens     int     `json:"tokens"`  // training tokens (windows) seen
 	Seconds    float64 `json:"seconds"` // this epoch's training time, without the dev evaluation
 	Elapsed    float64 `json:"elapsed"` // since Train started, at the end of this epoch
@@ -109,7 +124,11 @@ type TrainResult struct {
 	EpochsRun  int          `json:"epochs_run"`
 	DevAcc     float64      `json:"dev_accuracy"`
 	DevMacroF1 float64      `json:"dev_macro_f1"`
+	DevMicroF1 float64      `json:"dev_micro_f1,omitempty"`
 	Seconds    float64      `json:"seconds"`
+	// Thresholds: for a multi-label model, how each label's threshold
+	// (also set in Model.Thresholds) was chosen on dev.
+	Thresholds []LabelThreshold `json:"label_thresholds,omitempty"`
 }
 
 // Errors of Train.
@@ -178,7 +197,10 @@ func (o *TrainOptions) defaults() {
 
 // Train fits m's weights to train by mini-batch back-propagation and keeps
 // the weights of the epoch with the best accuracy on dev (with an empty dev
-// set, the last epoch's). m must have its own writable weights (as New
+// set, the last epoch's). A multi-label m (Model.Multi) is trained with
+// binary cross-entropy on one sigmoid per label, its best epoch is the one
+// with the lowest dev binary cross-entropy, and Train then sets m.Thresholds from
+// dev (see TrainOptions.ThresholdGoal). m must have its own writable weights (as New
 // returns) and no folded table; Train writes them in place and is not safe
 // to run concurrently with any other use of m. The same m, data, options
 // and Jobs give bit-identical weights.
@@ -205,7 +227,7 @@ func Train(m *model.Model, train, dev []Example, opt TrainOptions) (*TrainResult
 	res := &TrainResult{}
 	start := time.Now()
 	order := make([]int, len(train))
-	bestAcc := -1.0
+	bestAcc := math.Inf(-1)
 	var best *netParams
 	since := 0
 	for epoch := 1; epoch <= opt.Epochs; epoch++ {
@@ -214,14 +236,25 @@ func Train(m *model.Model, train, dev []Example, opt TrainOptions) (*TrainResult
 			return nil, ErrStopped
 		}
 		if len(dev) > 0 {
-			es.DevAcc, es.DevMacroF1 = t.evaluate(dev)
+			if t.p.multi {
+				es.DevAcc, es.DevMacroF1, es.DevMicroF1, es.DevLoss = t.evaluateMulti(dev)
+			} else {
+				es.DevAcc, es.DevMacroF1 = t.evaluate(dev)
+			}
 		}
 		es.Elapsed = time.Since(start).Seconds()
 		res.Curve = append(res.Curve, es)
 		res.EpochsRun = epoch
-		if len(dev) == 0 || es.DevAcc > bestAcc {
-			bestAcc = es.DevAcc
-			res.BestEpoch, res.DevAcc, res.DevMacroF1 = epoch, es.DevAcc, es.DevMacroF1
+		score := es.DevAcc
+		if t.p.multi {
+			// The F1 at 0.5 stays 0 while the network still says no to
+			// every label, so it cannot tell early epochs apart; the loss
+			// can (common practice for early stopping).
+			score = -es.DevLoss
+		}
+		if len(dev) == 0 || score > bestAcc {
+			bestAcc = score
+			res.BestEpoch, res.DevAcc, res.DevMacroF1, res.DevMicroF1 = epoch, es.DevAcc, es.DevMacroF1, es.DevMicroF1
 			best = t.p.snapshot(best)
 			since = 0
 		} else {
@@ -235,6 +268,13 @@ func Train(m *model.Model, train, dev []Example, opt TrainOptions) (*TrainResult
 		}
 	}
 	best.writeTo(m)
+	if m.Multi {
+		th, err := chooseThresholds(m, dev, opt.ThresholdGoal)
+		if err != nil {
+			return nil, err
+		}
+		res.Thresholds = th
+	}
 	res.Seconds = time.Since(start).Seconds()
 	return res, nil
 }
@@ -242,12 +282,16 @@ func Train(m *model.Model, train, dev []Example, opt TrainOptions) (*TrainResult
 func checkTrainExamples(m *model.Model, ex []Example) error {
 	rows := int32(m.Rows())
 	for i, e := range ex {
-		if e.Label < 0 || e.Label >= len(m.Labels) {
-			return fmt.Errorf("example %d: %w: %d", i, ErrBadLabel, e.Label)
+		if m.Multi {
+			if err := checkTags(e.Tags, len(m.Labels)); err != nil {
+				return fmt.Errorf("model: example %d: %w", i, err)
+			}
+		} else if e.Label < 0 || e.Label >= len(m.Labels) {
+			return fmt.Errorf("%w: example %d has label %d", ErrBadLabel, i, e.Label)
 		}
 		for _, r := range e.Rows {
 			if r < 0 || r >= rows {
-				return fmt.Errorf("example %d: %w: %d", i, ErrBadRow, r)
+				return fmt.Errorf("%w: example %d has row %d", ErrBadRow, i, r)
 			}
 		}
 	}
@@ -326,7 +370,14 @@ func (t *trainer) epoch(epoch int, train []Example, order []int) (_ EpochStats, 
 		batch := order[b:min(b+t.opt.Batch, len(order))]
 		var bw float64
 		for _, i := range batch {
-			bw += float64(t.cw[train[i].Label])
+			if t.p.multi {
+				// The mean over records and labels, as PyTorch's
+				// BCEWithLogitsLoss(reduction="mean"); pos_weight does
+				// not enter the denominator.
+				bw += float64(len(t.cw))
+			} else {
+				bw += float64(t.cw[train[i].Label])
+			}
 		}
 		if bw == 0 {
 			continue
@@ -341,7 +392,11 @@ func (t *trainer) epoch(epoch int, train []Example, order []int) (_ EpochStats, 
 			for _, i := range batch[lo:hi] {
 				e := &train[i]
 				seed := uint64(epoch)<<40 ^ uint64(i)
-				w.example(t.p, e, t.cw[e.Label], scale, t.opt.Dropout, t.opt.Seed, seed)
+				if t.p.multi {
+					w.exampleMulti(t.p, e, t.cw, scale, t.opt.Dropout, t.opt.Seed, seed)
+				} else {
+					w.example(t.p, e, t.cw[e.Label], scale, t.opt.Dropout, t.opt.Seed, seed)
+				}
 			}
 		})
 		t.reduce(nw)

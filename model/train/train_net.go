@@ -36,6 +36,7 @@ type netParams struct {
 	outIn, C         int
 	list             [][]float32 // every dense tensor, in a fixed order
 	kern             *kernel.Set // the training kernels
+	multi            bool        // one sigmoid per label (Model.Multi)
 }
 
 func paramsFrom(m *model.Model) *netParams {
@@ -46,6 +47,7 @@ func paramsFrom(m *model.Model) *netParams {
 		widths: slices.Clone(cfg.Widths), maxW: cfg.MaxWidth(),
 		emb:  slices.Clone(m.Emb),
 		outW: slices.Clone(m.Out.W), outB: slices.Clone(m.Out.B), outIn: m.Out.In, C: m.Out.Out,
+		multi: m.Multi,
 	}
 	for _, c := range m.Convs {
 		w := c.Width
@@ -201,6 +203,7 @@ type trainWorker struct {
 	win                   []int32
 	hid, dhid             []float32
 	logits, dlog          []float32
+	raw, y                []float32 // multi-label: the logits before the sigmoid, the 0/1 targets
 	rows                  []int32
 	loss                  float64
 	correct, tokens       int
@@ -216,6 +219,7 @@ func newTrainWorker(p *netParams) *trainWorker {
 		win: make([]int32, nf),
 		hid: make([]float32, p.H), dhid: make([]float32, p.H),
 		logits: make([]float32, p.C), dlog: make([]float32, p.C),
+		raw: make([]float32, p.C), y: make([]float32, p.C),
 	}
 }
 
@@ -228,7 +232,8 @@ func (w *trainWorker) reset() {
 }
 
 // forward computes the class probabilities of rows into w.logits (which it
-// returns, softmaxed). With dropout > 0 it drops pooled features with a
+// returns, softmaxed, or for a multi-label network each logit's sigmoid,
+// with the logits kept in w.raw). With dropout > 0 it drops pooled features with a
 // generator seeded by (seed, exSeed).
 func (w *trainWorker) forward(p *netParams, rows []int32, dropout float64, seed, exSeed uint64) []float32 {
 	if len(rows) == 0 {
@@ -300,7 +305,12 @@ func (w *trainWorker) forward(p *netParams, rows []int32, dropout float64, seed,
 		x = w.hid
 	}
 	trDense(w.logits, p.outW, p.outB, x)
-	trSoftmax(w.logits)
+	if p.multi {
+		copy(w.raw, w.logits)
+		trSigmoid(w.logits)
+	} else {
+		trSoftmax(w.logits)
+	}
 	return w.logits
 }
 
@@ -430,4 +440,11 @@ func trDot(a, b []float32) float32 {
 		s += a[i] * b[i]
 	}
 	return s
+}
+
+// trSigmoid sets each x[i] to 1/(1+exp(-x[i])).
+func trSigmoid(x []float32) {
+	for i, v := range x {
+		x[i] = float32(1 / (1 + math.Exp(-float64(v))))
+	}
 }

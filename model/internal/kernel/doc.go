@@ -11,5 +11,12 @@
 // Every assembly kernel has a plain-Go twin, and the tests compare each set
 // with Generic on every set this machine has.
 //
+// The ten folded-convolution variants in fold_amd64.s (F32 or F16 table,
+// AVX-512 or AVX2, 8, 4 or 1 vectors per chunk) are generated from one
+// text/template by foldgen; dot_amd64.s and train_amd64.s are written by
+// hand.
+//
 // It owns no model and no I/O; it imports nothing of this module.
 package kernel
+
+//go:generate go run ./foldgen -o fold_amd64.s

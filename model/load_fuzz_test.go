@@ -4,7 +4,6 @@ import (
 	"bytes"
 	"encoding/binary"
 	"errors"
-	"fmt"
 	"math"
 	"os"
 	"path/filepath"
@@ -13,54 +12,12 @@ import (
 	"strings"
 	"testing"
 
+	"convtag/model/safetensors"
 	"convtag/model/token"
 )
 
 // The seed corpora live under testdata/fuzz/Fuzz*/ and are written by
 // TestFixtureFuzzSeeds with -update (go test ./model -run TestFixture -update).
-
-func FuzzParseContainer(f *testing.F) {
-	f.Add(stRaw(`{}`, nil))
-	f.Fuzz(func(t *testing.T, b []byte) {
-		meta, ts, err := ParseContainer(b)
-		if err != nil {
-			var fe *FormatError
-			if !errors.As(err, &fe) || strings.Contains(err.Error(), "\n") {
-				t.Fatalf("error %q (%T) is not a one-line *FormatError", err, err)
-			}
-			return
-		}
-		n := binary.LittleEndian.Uint64(b)
-		total := 0
-		for _, x := range ts {
-			total += len(x.Data)
-			if k, ok := byteSize(x.Shape, DTypeSize(x.DType)); !ok || k != uint64(len(x.Data)) {
-				t.Fatalf("tensor %q: %d bytes for %s %v", x.Name, len(x.Data), x.DType, x.Shape)
-			}
-		}
-		if uint64(total) != uint64(len(b))-8-n {
-			t.Fatalf("tensors hold %d bytes, data buffer has %d", total, uint64(len(b))-8-n)
-		}
-		// What we parsed, we can write, unless its order leaves a tensor
-		// misaligned; and it reads back the same.
-		var buf bytes.Buffer
-		if err := EncodeContainer(&buf, meta, ts); err != nil {
-			if !errors.Is(err, ErrMisaligned) {
-				t.Fatalf("re-encoding: %v", err)
-			}
-			return
-		}
-		meta2, ts2, err := ParseContainer(buf.Bytes())
-		if err != nil {
-			t.Fatalf("parsing our own encoding: %v", err)
-		}
-		if !equalMeta(meta, meta2) || !slices.EqualFunc(ts, ts2, func(a, b Tensor) bool {
-			return a.Name == b.Name && a.DType == b.DType && equalInts(a.Shape, b.Shape) && bytes.Equal(a.Data, b.Data)
-		}) {
-			t.Fatal("round trip changed the container")
-		}
-	})
-}
 
 func FuzzLoad(f *testing.F) {
 	f.Fuzz(func(t *testing.T, b []byte) {
@@ -119,31 +76,8 @@ func stTinyModel(t testing.TB) *Model {
 	return m
 }
 
-// stEntry is one tensor line of a hand-made header.
-type stEntry struct {
-	name, dtype string
-	shape       string // JSON array text
-	begin, end  uint64
-}
-
-func stHeader(meta string, es []stEntry) string {
-	var b strings.Builder
-	b.WriteString("{")
-	if meta != "" {
-		b.WriteString(`"__metadata__":` + meta)
-	}
-	for i, e := range es {
-		if i > 0 || meta != "" {
-			b.WriteString(",")
-		}
-		fmt.Fprintf(&b, `%s:{"dtype":%q,"shape":%s,"data_offsets":[%d,%d]}`, strconv.Quote(e.name), e.dtype, e.shape, e.begin, e.end)
-	}
-	b.WriteString("}")
-	return b.String()
-}
-
-// stSeeds returns the named seed inputs of both fuzz targets.
-func stSeeds(t testing.TB) (container, load map[string][]byte) {
+// stSeeds returns the named seed inputs of FuzzLoad.
+func stSeeds(t testing.TB) (load map[string][]byte) {
 	var buf bytes.Buffer
 	if err := stTinyModel(t).Encode(&buf, SaveOptions{}); err != nil {
 		t.Fatal(err)
@@ -170,7 +104,7 @@ func stSeeds(t testing.TB) (container, load map[string][]byte) {
 	}
 	// A NaN in the first convolution weight, which Load must catch.
 	nan := slices.Clone(valid)
-	_, ts, err := ParseContainer(valid)
+	_, ts, err := safetensors.Parse(valid)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -184,28 +118,14 @@ func stSeeds(t testing.TB) (container, load map[string][]byte) {
 	}
 	load["nan_weight"] = nan
 
-	four := []byte{1, 2, 3, 4, 5, 6, 7, 8}
-	container = map[string][]byte{
-		"empty":          stRaw(`{}`, nil),
-		"two_tensors":    stRaw(stHeader(`{"k":"v"}`, []stEntry{{"a", "F32", "[1]", 0, 4}, {"b", "U8", "[2,2]", 4, 8}}), four),
-		"out_of_order":   stRaw(stHeader("", []stEntry{{"b", "U8", "[4]", 4, 8}, {"a", "I32", "[1]", 0, 4}}), four),
-		"overlap":        stRaw(stHeader("", []stEntry{{"a", "U8", "[6]", 0, 6}, {"b", "U8", "[4]", 4, 8}}), four),
-		"gap":            stRaw(stHeader("", []stEntry{{"a", "U8", "[2]", 0, 2}, {"b", "U8", "[4]", 4, 8}}), four),
-		"shape_overflow": stRaw(stHeader("", []stEntry{{"a", "F64", "[4294967296,4294967296]", 0, 8}}), four),
-		"trailing_bytes": stRaw(stHeader("", []stEntry{{"a", "U8", "[4]", 0, 4}}), four),
-		"duplicate_key":  stRaw(`{"a":{"dtype":"U8","shape":[8],"data_offsets":[0,8]},"a":{"dtype":"U8","shape":[8],"data_offsets":[0,8]}}`, four),
-		"misaligned":     stRaw(stHeader("", []stEntry{{"a", "U8", "[1]", 0, 1}, {"b", "F32", "[1]", 1, 5}, {"c", "U8", "[3]", 5, 8}}), four),
-		"huge_length":    binary.LittleEndian.AppendUint64(nil, math.MaxUint64),
-		"model":          valid,
-	}
-	return container, load
+	return load
 }
 
 // TestFixtureFuzzSeeds keeps the seed corpora under testdata/fuzz in step
 // with stSeeds (rewritten with -update).
 func TestFixtureFuzzSeeds(t *testing.T) {
-	container, load := stSeeds(t)
-	for target, seeds := range map[string]map[string][]byte{"FuzzParseContainer": container, "FuzzLoad": load} {
+	load := stSeeds(t)
+	for target, seeds := range map[string]map[string][]byte{"FuzzLoad": load} {
 		dir := filepath.Join("testdata", "fuzz", target)
 		for name, b := range seeds {
 			want := []byte("go test fuzz v1\n[]byte(" + strconv.Quote(string(b)) + ")\n")
@@ -226,8 +146,8 @@ func TestFixtureFuzzSeeds(t *testing.T) {
 	}
 	// The seeds must show what they are named for.
 	cases := map[string]error{
-		"oversized_length": ErrHeaderTooLarge, "length_past_end": ErrTruncated, "trailing_bytes": ErrOffsets,
-		"truncated": ErrOffsets, "duplicate_meta_key": ErrDuplicateKey, "duplicate_tensor": ErrDuplicateKey,
+		"oversized_length": safetensors.ErrHeaderTooLarge, "length_past_end": safetensors.ErrTruncated, "trailing_bytes": safetensors.ErrOffsets,
+		"truncated": safetensors.ErrOffsets, "duplicate_meta_key": safetensors.ErrDuplicateKey, "duplicate_tensor": safetensors.ErrDuplicateKey,
 		"version_2": ErrVersion, "nan_weight": ErrNotFinite, "valid": nil, "misaligned_data": nil,
 	}
 	for name, want := range cases {

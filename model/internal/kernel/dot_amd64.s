@@ -1,0 +1,356 @@
+//go:build amd64 && !purego
+
+#include "textflag.h"
+
+// ---- Dot products (FMA). Sums are kept in several vector accumulators
+// and added at the end, so they differ from a sequential sum by rounding.
+
+// Horizontal sum of a zmm into lane 0 of its xmm.
+#define HSUM_Z(z, y, x, ty, tx) \
+	VEXTRACTF64X4 $1, z, ty; \
+	VADDPS ty, y, y; \
+	HSUM_Y(y, x, tx)
+
+#define HSUM_Y(y, x, tx) \
+	VEXTRACTF128 $1, y, tx; \
+	VADDPS tx, x, x; \
+	VMOVHLPS x, x, tx; \
+	VADDPS tx, x, x; \
+	VPSHUFD $1, x, tx; \
+	VADDSS tx, x, x
+
+// func dotAVX512(a, b *float32, n int) float32
+TEXT ·dotAVX512(SB), NOSPLIT, $0-28
+	MOVQ a+0(FP), SI
+	MOVQ b+8(FP), DI
+	MOVQ n+16(FP), CX
+	VPXORD Z0, Z0, Z0
+	VPXORD Z1, Z1, Z1
+	VPXORD Z2, Z2, Z2
+	VPXORD Z3, Z3, Z3
+
+dz64:
+	CMPQ CX, $64
+	JLT dz16
+	VMOVUPS 0(SI), Z4
+	VMOVUPS 64(SI), Z5
+	VMOVUPS 128(SI), Z6
+	VMOVUPS 192(SI), Z7
+	VFMADD231PS 0(DI), Z4, Z0
+	VFMADD231PS 64(DI), Z5, Z1
+	VFMADD231PS 128(DI), Z6, Z2
+	VFMADD231PS 192(DI), Z7, Z3
+	ADDQ $256, SI
+	ADDQ $256, DI
+	SUBQ $64, CX
+	JMP dz64
+
+dz16:
+	CMPQ CX, $16
+	JLT dztail
+	VMOVUPS 0(SI), Z4
+	VFMADD231PS 0(DI), Z4, Z0
+	ADDQ $64, SI
+	ADDQ $64, DI
+	SUBQ $16, CX
+	JMP dz16
+
+dztail:
+	TESTQ CX, CX
+	JZ dzsum
+	MOVL $1, AX
+	SHLL CX, AX
+	DECL AX
+	KMOVW AX, K1
+	VMOVUPS.Z 0(SI), K1, Z4
+	VMOVUPS.Z 0(DI), K1, Z5
+	VFMADD231PS Z5, Z4, Z1
+
+dzsum:
+	VADDPS Z1, Z0, Z0
+	VADDPS Z3, Z2, Z2
+	VADDPS Z2, Z0, Z0
+	HSUM_Z(Z0, Y0, X0, Y1, X1)
+	VMOVSS X0, ret+24(FP)
+	VZEROUPPER
+	RET
+
+// func dot4AVX512(a, x *float32, stride, n int, out *[4]float32)
+TEXT ·dot4AVX512(SB), NOSPLIT, $0-40
+	MOVQ a+0(FP), SI
+	MOVQ x+8(FP), DI
+	MOVQ stride+16(FP), R8
+	SHLQ $2, R8
+	LEAQ (DI)(R8*1), R9
+	LEAQ (R9)(R8*1), R10
+	LEAQ (R10)(R8*1), R11
+	MOVQ n+24(FP), CX
+	VPXORD Z0, Z0, Z0
+	VPXORD Z1, Z1, Z1
+	VPXORD Z2, Z2, Z2
+	VPXORD Z3, Z3, Z3
+	VPXORD Z4, Z4, Z4
+	VPXORD Z5, Z5, Z5
+	VPXORD Z6, Z6, Z6
+	VPXORD Z7, Z7, Z7
+
+qz32:
+	CMPQ CX, $32
+	JLT qz16
+	VMOVUPS 0(SI), Z8
+	VMOVUPS 64(SI), Z9
+	VFMADD231PS 0(DI), Z8, Z0
+	VFMADD231PS 0(R9), Z8, Z1
+	VFMADD231PS 0(R10), Z8, Z2
+	VFMADD231PS 0(R11), Z8, Z3
+	VFMADD231PS 64(DI), Z9, Z4
+	VFMADD231PS 64(R9), Z9, Z5
+	VFMADD231PS 64(R10), Z9, Z6
+	VFMADD231PS 64(R11), Z9, Z7
+	ADDQ $128, SI
+	ADDQ $128, DI
+	ADDQ $128, R9
+	ADDQ $128, R10
+	ADDQ $128, R11
+	SUBQ $32, CX
+	JMP qz32
+
+qz16:
+	CMPQ CX, $16
+	JLT qztail
+	VMOVUPS 0(SI), Z8
+	VFMADD231PS 0(DI), Z8, Z0
+	VFMADD231PS 0(R9), Z8, Z1
+	VFMADD231PS 0(R10), Z8, Z2
+	VFMADD231PS 0(R11), Z8, Z3
+	ADDQ $64, SI
+	ADDQ $64, DI
+	ADDQ $64, R9
+	ADDQ $64, R10
+	ADDQ $64, R11
+	SUBQ $16, CX
+
+qztail:
+	TESTQ CX, CX
+	JZ qzsum
+	MOVL $1, AX
+	SHLL CX, AX
+	DECL AX
+	KMOVW AX, K1
+	VMOVUPS.Z 0(SI), K1, Z8
+	VMOVUPS.Z 0(DI), K1, Z9
+	VFMADD231PS Z9, Z8, Z4
+	VMOVUPS.Z 0(R9), K1, Z9
+	VFMADD231PS Z9, Z8, Z5
+	VMOVUPS.Z 0(R10), K1, Z9
+	VFMADD231PS Z9, Z8, Z6
+	VMOVUPS.Z 0(R11), K1, Z9
+	VFMADD231PS Z9, Z8, Z7
+
+qzsum:
+	VADDPS Z4, Z0, Z0
+	VADDPS Z5, Z1, Z1
+	VADDPS Z6, Z2, Z2
+	VADDPS Z7, Z3, Z3
+	MOVQ out+32(FP), DX
+	HSUM_Z(Z0, Y0, X0, Y8, X8)
+	VMOVSS X0, 0(DX)
+	HSUM_Z(Z1, Y1, X1, Y8, X8)
+	VMOVSS X1, 4(DX)
+	HSUM_Z(Z2, Y2, X2, Y8, X8)
+	VMOVSS X2, 8(DX)
+	HSUM_Z(Z3, Y3, X3, Y8, X8)
+	VMOVSS X3, 12(DX)
+	VZEROUPPER
+	RET
+
+// func dotAVX2(a, b *float32, n int) float32
+TEXT ·dotAVX2(SB), NOSPLIT, $0-28
+	MOVQ a+0(FP), SI
+	MOVQ b+8(FP), DI
+	MOVQ n+16(FP), CX
+	VXORPS Y0, Y0, Y0
+	VXORPS Y1, Y1, Y1
+	VXORPS Y2, Y2, Y2
+	VXORPS Y3, Y3, Y3
+
+dy32:
+	CMPQ CX, $32
+	JLT dy8
+	VMOVUPS 0(SI), Y4
+	VMOVUPS 32(SI), Y5
+	VMOVUPS 64(SI), Y6
+	VMOVUPS 96(SI), Y7
+	VFMADD231PS 0(DI), Y4, Y0
+	VFMADD231PS 32(DI), Y5, Y1
+	VFMADD231PS 64(DI), Y6, Y2
+	VFMADD231PS 96(DI), Y7, Y3
+	ADDQ $128, SI
+	ADDQ $128, DI
+	SUBQ $32, CX
+	JMP dy32
+
+dy8:
+	CMPQ CX, $8
+	JLT dysum
+	VMOVUPS 0(SI), Y4
+	VFMADD231PS 0(DI), Y4, Y0
+	ADDQ $32, SI
+	ADDQ $32, DI
+	SUBQ $8, CX
+	JMP dy8
+
+dysum:
+	VADDPS Y1, Y0, Y0
+	VADDPS Y3, Y2, Y2
+	VADDPS Y2, Y0, Y0
+	HSUM_Y(Y0, X0, X1)
+
+	// Scalar tail; VEX.128 ops clear the upper lanes, which are spent.
+dytail:
+	TESTQ CX, CX
+	JZ dydone
+	VMOVSS 0(SI), X4
+	VFMADD231SS 0(DI), X4, X0
+	ADDQ $4, SI
+	ADDQ $4, DI
+	DECQ CX
+	JMP dytail
+
+dydone:
+	VMOVSS X0, ret+24(FP)
+	VZEROUPPER
+	RET
+
+// func dot4AVX2(a, x *float32, stride, n int, out *[4]float32)
+TEXT ·dot4AVX2(SB), NOSPLIT, $0-40
+	MOVQ a+0(FP), SI
+	MOVQ x+8(FP), DI
+	MOVQ stride+16(FP), R8
+	SHLQ $2, R8
+	LEAQ (DI)(R8*1), R9
+	LEAQ (R9)(R8*1), R10
+	LEAQ (R10)(R8*1), R11
+	MOVQ n+24(FP), CX
+	VXORPS Y0, Y0, Y0
+	VXORPS Y1, Y1, Y1
+	VXORPS Y2, Y2, Y2
+	VXORPS Y3, Y3, Y3
+	VXORPS Y4, Y4, Y4
+	VXORPS Y5, Y5, Y5
+	VXORPS Y6, Y6, Y6
+	VXORPS Y7, Y7, Y7
+
+qy16:
+	CMPQ CX, $16
+	JLT qy8
+	VMOVUPS 0(SI), Y8
+	VMOVUPS 32(SI), Y9
+	VFMADD231PS 0(DI), Y8, Y0
+	VFMADD231PS 0(R9), Y8, Y1
+	VFMADD231PS 0(R10), Y8, Y2
+	VFMADD231PS 0(R11), Y8, Y3
+	VFMADD231PS 32(DI), Y9, Y4
+	VFMADD231PS 32(R9), Y9, Y5
+	VFMADD231PS 32(R10), Y9, Y6
+	VFMADD231PS 32(R11), Y9, Y7
+	ADDQ $64, SI
+	ADDQ $64, DI
+	ADDQ $64, R9
+	ADDQ $64, R10
+	ADDQ $64, R11
+	SUBQ $16, CX
+	JMP qy16
+
+qy8:
+	CMPQ CX, $8
+	JLT qysum
+	VMOVUPS 0(SI), Y8
+	VFMADD231PS 0(DI), Y8, Y0
+	VFMADD231PS 0(R9), Y8, Y1
+	VFMADD231PS 0(R10), Y8, Y2
+	VFMADD231PS 0(R11), Y8, Y3
+	ADDQ $32, SI
+	ADDQ $32, DI
+	ADDQ $32, R9
+	ADDQ $32, R10
+	ADDQ $32, R11
+	SUBQ $8, CX
+
+qysum:
+	VADDPS Y4, Y0, Y0
+	VADDPS Y5, Y1, Y1
+	VADDPS Y6, Y2, Y2
+	VADDPS Y7, Y3, Y3
+	HSUM_Y(Y0, X0, X8)
+	HSUM_Y(Y1, X1, X8)
+	HSUM_Y(Y2, X2, X8)
+	HSUM_Y(Y3, X3, X8)
+
+qytail:
+	TESTQ CX, CX
+	JZ qydone
+	VMOVSS 0(SI), X8
+	VFMADD231SS 0(DI), X8, X0
+	VFMADD231SS 0(R9), X8, X1
+	VFMADD231SS 0(R10), X8, X2
+	VFMADD231SS 0(R11), X8, X3
+	ADDQ $4, SI
+	ADDQ $4, DI
+	ADDQ $4, R9
+	ADDQ $4, R10
+	ADDQ $4, R11
+	DECQ CX
+	JMP qytail
+
+qydone:
+	MOVQ out+32(FP), DX
+	VMOVSS X0, 0(DX)
+	VMOVSS X1, 4(DX)
+	VMOVSS X2, 8(DX)
+	VMOVSS X3, 12(DX)
+	VZEROUPPER
+	RET
+
+// ---- F16C conversions, used by tests as the hardware reference for
+// F32ToF16 and F16ToF32. n is a multiple of 8.
+
+// func cvtPS2PH(dst *uint16, src *float32, n int)
+TEXT ·cvtPS2PH(SB), NOSPLIT, $0-24
+	MOVQ dst+0(FP), DI
+	MOVQ src+8(FP), SI
+	MOVQ n+16(FP), CX
+
+cvt1:
+	CMPQ CX, $8
+	JLT cvt1done
+	VMOVUPS 0(SI), Y0
+	VCVTPS2PH $0, Y0, 0(DI) // imm 0: round to nearest even, not MXCSR
+	ADDQ $32, SI
+	ADDQ $16, DI
+	SUBQ $8, CX
+	JMP cvt1
+
+cvt1done:
+	VZEROUPPER
+	RET
+
+// func cvtPH2PS(dst *float32, src *uint16, n int)
+TEXT ·cvtPH2PS(SB), NOSPLIT, $0-24
+	MOVQ dst+0(FP), DI
+	MOVQ src+8(FP), SI
+	MOVQ n+16(FP), CX
+
+cvt2:
+	CMPQ CX, $8
+	JLT cvt2done
+	VCVTPH2PS 0(SI), Y0
+	VMOVUPS Y0, 0(DI)
+	ADDQ $16, SI
+	ADDQ $32, DI
+	SUBQ $8, CX
+	JMP cvt2
+
+cvt2done:
+	VZEROUPPER
+	RET
