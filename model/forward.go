@@ -5,6 +5,7 @@ import (
 	"math"
 
 	"convtag/model/internal/kernel"
+	"convtag/model/linear"
 	"convtag/model/token"
 )
 
@@ -34,6 +35,14 @@ type Predictor struct {
 	probs  []float32
 	acc    []float32 // kernel scratch, Filters
 	out4   [4]float32
+
+	// The scorer (Model.Scorer unless SetScorer) and, when it uses the
+	// linear baseline, its predictor and the mixture's scratch.
+	scorer Scorer
+	lin    *linear.Predictor
+	linP   []float64 // the baseline's probabilities of the last Predict
+	mixed  []float32
+	mixZ   []float64
 
 	// Direct path only, built on first use.
 	wt [][]float32 // per width, the filters as [F][w][d] (tap-major)
@@ -66,16 +75,48 @@ func (m *Model) NewPredictor() *Predictor {
 	limit := m.TokenSettings.Limit()
 	p.rows = make([]int32, 0, limit)
 	p.last = make([]int32, 0, limit)
+	if err := p.SetScorer(m.Scorer); err != nil {
+		p.SetScorer(Scorer{}) // Open checked the stored scorer; a built model may hold any
+	}
 	return p
 }
+
+// SetScorer makes Predict score with s (see Scorer); it fails, changing
+// nothing, when s needs a baseline the model lacks.
+func (p *Predictor) SetScorer(s Scorer) error {
+	if err := s.check(p.m); err != nil {
+		return err
+	}
+	p.scorer = s
+	if s.weight() > 0 && p.lin == nil {
+		p.lin = p.m.Linear.NewPredictor()
+		p.mixed = make([]float32, len(p.m.Labels))
+		p.mixZ = make([]float64, len(p.m.Labels))
+	}
+	p.linP = nil
+	return nil
+}
+
+// Scorer is what Predict scores with.
+func (p *Predictor) Scorer() Scorer { return p.scorer }
+
+// NetworkProbs is the network's own probabilities for the last Predict
+// (whatever the scorer), valid until the next call.
+func (p *Predictor) NetworkProbs() []float32 { return p.probs }
+
+// BaselineProbs is the linear baseline's probabilities for the last
+// Predict, or nil when the scorer does not use the baseline.
+func (p *Predictor) BaselineProbs() []float64 { return p.linP }
 
 // SetDirect forces the direct path (embedding rows times filters) even when
 // m has fold tables. Without fold tables the direct path is always used.
 func (p *Predictor) SetDirect(direct bool) { p.direct = direct }
 
 // Predict tokenizes text, looks its tokens up in the vocabulary and returns
-// one probability per label: the softmax of the logits, or for a
-// multi-label model (Model.Multi) each logit's sigmoid.
+// one probability per label: the network's softmax of the logits (for a
+// multi-label model, Model.Multi, each logit's sigmoid), or, as the
+// Predictor's Scorer says, the linear baseline's probabilities of the same
+// tokens or the mixture of both (single-label models only).
 func (p *Predictor) Predict(text []byte) []float32 {
 	p.tok.Tokenize(&p.toks, text)
 	p.rows = p.rows[:0]
@@ -88,7 +129,20 @@ func (p *Predictor) Predict(text []byte) []float32 {
 		}
 		p.rows = append(p.rows, r)
 	}
-	return p.PredictRows(p.rows)
+	pn := p.PredictRows(p.rows)
+	w := p.scorer.weight()
+	if w == 0 {
+		return pn
+	}
+	p.linP = p.lin.ProbsOf(&p.toks)
+	if w == 1 {
+		for c, v := range p.linP {
+			p.mixed[c] = float32(v)
+		}
+	} else {
+		Mix(p.mixed, p.mixZ, pn, p.linP, w)
+	}
+	return p.mixed
 }
 
 // PredictRows returns the probabilities for a text given as embedding rows

@@ -1,6 +1,9 @@
 package model
 
-import "convtag/model/token"
+import (
+	"convtag/model/linear"
+	"convtag/model/token"
+)
 
 // Conv is one convolution of a given width.
 type Conv struct {
@@ -63,6 +66,16 @@ type Model struct {
 	// (tensor "baseline", U8). It is a tensor rather than metadata so that
 	// opening a file never parses it. nil when absent; aliases the file.
 	Baseline []byte
+
+	// Linear is the optional logistic-regression baseline on tf-idf
+	// unigrams and bigrams of the same tokens (tensors "linear.*"), which
+	// the combined scorer mixes with the network; nil when absent. Its
+	// arrays alias the file.
+	Linear *linear.Model
+
+	// Scorer is what a Predictor scores with by default (metadata
+	// "scorer"); the zero value is the network alone.
+	Scorer Scorer
 
 	// Meta is the file's __metadata__, including the keys this package
 	// writes itself (see the Meta* constants).

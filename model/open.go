@@ -13,6 +13,7 @@ import (
 	"strconv"
 	"strings"
 
+	"convtag/model/linear"
 	"convtag/model/safetensors"
 	"convtag/model/token"
 )
@@ -24,10 +25,20 @@ const (
 	TensorVocabIndex   = "vocab.index"
 	TensorVocabBytes   = "vocab.bytes"
 	TensorBaseline     = "baseline" // optional U8 blob: the naive-Bayes baseline
-	TensorHiddenW      = "hidden.weight"
-	TensorHiddenB      = "hidden.bias"
-	TensorOutputW      = "output.weight"
-	TensorOutputB      = "output.bias"
+
+	// The optional linear baseline (package linear's arrays, as they are):
+	// the n-grams' bytes and offsets, the hash index, the idf, the weights
+	// [features][labels] and the intercepts [labels].
+	TensorLinearGrams   = "linear.grams"
+	TensorLinearOffsets = "linear.offsets"
+	TensorLinearIndex   = "linear.index"
+	TensorLinearIDF     = "linear.idf"
+	TensorLinearWeights = "linear.weights"
+	TensorLinearBias    = "linear.bias"
+	TensorHiddenW       = "hidden.weight"
+	TensorHiddenB       = "hidden.bias"
+	TensorOutputW       = "output.weight"
+	TensorOutputB       = "output.bias"
 )
 
 // ConvWeightName, ConvBiasName and FoldName name the per-width tensors of
@@ -51,6 +62,7 @@ const (
 	MetaTraining      = "training"       // JSON training summary, optional, written by training
 	MetaChecksum      = "checksum"       // "sha256:" + hex of the whole data buffer
 	MetaCreatedBy     = "created_by"     // "convtag " + SaveOptions.Version
+	MetaLinearC       = "linear_c"       // the linear baseline's C, when it is stored
 )
 
 // FormatName is the value of the "format" metadata key.
@@ -242,6 +254,16 @@ func assemble(meta map[string]string, tensors []safetensors.Tensor) (*Model, err
 	if err := s.build(m); err != nil {
 		return nil, err
 	}
+	if v, ok := meta[MetaScorer]; ok {
+		sc, err := decodeScorer(v)
+		if err == nil {
+			err = sc.check(m)
+		}
+		if err != nil {
+			return nil, fmt.Errorf("%w: %s: %v", ErrMetadata, MetaScorer, err)
+		}
+		m.Scorer = sc
+	}
 	var extra []string
 	for name := range s.byName {
 		if !s.used[name] {
@@ -416,7 +438,71 @@ func (s *schema) build(m *Model) error {
 		}
 		m.Baseline = t.Data
 	}
+	if err := s.buildLinear(m); err != nil {
+		return err
+	}
 	return s.buildFold(m, rows)
+}
+
+// buildLinear views the linear baseline's tensors, if the file has them,
+// checking their shapes only (O(1)): Verify checks offsets, index and
+// finiteness, as for the vocabulary.
+func (s *schema) buildLinear(m *Model) error {
+	gt, ok := s.byName[TensorLinearGrams]
+	if !ok {
+		for _, n := range []string{TensorLinearOffsets, TensorLinearIndex, TensorLinearIDF, TensorLinearWeights, TensorLinearBias} {
+			if _, ok := s.byName[n]; ok {
+				return formatErr(TensorLinearGrams, ErrMissingTensor, "the file has %s", n)
+			}
+		}
+		return nil
+	}
+	ot, ok := s.byName[TensorLinearOffsets]
+	if !ok || len(ot.Shape) != 1 || ot.Shape[0] < 1 {
+		if !ok {
+			return formatErr(TensorLinearOffsets, ErrMissingTensor, "")
+		}
+		return formatErr(TensorLinearOffsets, ErrSchema, "shape %v, want [F+1]", ot.Shape)
+	}
+	nf := ot.Shape[0] - 1
+	it, ok := s.byName[TensorLinearIndex]
+	if !ok || len(it.Shape) != 1 {
+		if !ok {
+			return formatErr(TensorLinearIndex, ErrMissingTensor, "")
+		}
+		return formatErr(TensorLinearIndex, ErrSchema, "shape %v, want [slots]", it.Shape)
+	}
+	l := len(m.Labels)
+	var err error
+	var v linear.Vocabulary
+	if gt, err = s.get(TensorLinearGrams, "U8", len(gt.Data)); err != nil {
+		return err
+	}
+	v.Grams = gt.Data
+	if ot, err = s.get(TensorLinearOffsets, "I64", nf+1); err != nil {
+		return err
+	}
+	v.Offsets = safetensors.ViewI64(ot.Data)
+	if it, err = s.get(TensorLinearIndex, "I32", it.Shape[0]); err != nil {
+		return err
+	}
+	v.Index = safetensors.ViewI32(it.Data)
+	if v.IDF, err = s.f32(TensorLinearIDF, nf); err != nil {
+		return err
+	}
+	w, err := s.f32(TensorLinearWeights, nf, l)
+	if err != nil {
+		return err
+	}
+	b, err := s.finite32(TensorLinearBias, l)
+	if err != nil {
+		return err
+	}
+	c, _ := strconv.ParseFloat(m.Meta[MetaLinearC], 64)
+	if m.Linear, err = linear.New(v, w, b, c); err != nil {
+		return formatErr(TensorLinearGrams, ErrBaseline, "%v", err)
+	}
+	return nil
 }
 
 // checkOffsets checks that the word offsets start at 0, never decrease and

@@ -69,6 +69,14 @@ func (m *Model) container(o SaveOptions) (map[string]string, []safetensors.Tenso
 	meta[MetaConfig] = mustJSON(m.Config)
 	meta[MetaTokenizer] = mustJSON(m.TokenSettings)
 	meta[MetaCreatedBy] = "convtag " + cmp.Or(o.Version, "dev")
+	delete(meta, MetaLinearC)
+	if m.Linear != nil {
+		meta[MetaLinearC] = strconv.FormatFloat(m.Linear.C, 'g', -1, 64)
+	}
+	delete(meta, MetaScorer)
+	if m.Scorer.kind() != ScoreNetwork {
+		meta[MetaScorer] = encodeScorer(m.Scorer)
+	}
 	if err := m.putMulti(meta); err != nil {
 		return nil, nil, err
 	}
@@ -100,6 +108,13 @@ func (m *Model) tensors() []safetensors.Tensor {
 	}
 	v := m.Vocab
 	add(TensorVocabOffsets, "I64", safetensors.Bytes(v.offs), len(v.offs))
+	// The linear baseline's arrays go with the others of their element
+	// size, so every tensor stays aligned (the n-grams last, with the other
+	// bytes); a model without one is laid out as before.
+	lm := m.Linear
+	if lm != nil {
+		add(TensorLinearOffsets, "I64", safetensors.Bytes(lm.Offsets), len(lm.Offsets))
+	}
 	add(TensorEmbedding, "F32", safetensors.Bytes(m.Emb), len(m.Emb)/max(d, 1), d)
 	for i, c := range m.Convs {
 		add(ConvWeightName(i), "F32", safetensors.Bytes(c.W), f, d, c.Width)
@@ -111,6 +126,11 @@ func (m *Model) tensors() []safetensors.Tensor {
 	}
 	add(TensorOutputW, "F32", safetensors.Bytes(m.Out.W), m.Out.Out, m.Out.In)
 	add(TensorOutputB, "F32", safetensors.Bytes(m.Out.B), len(m.Out.B))
+	if lm != nil {
+		add(TensorLinearWeights, "F32", safetensors.Bytes(lm.Weights), lm.Len(), lm.Labels())
+		add(TensorLinearIDF, "F32", safetensors.Bytes(lm.IDF), len(lm.IDF))
+		add(TensorLinearBias, "F32", safetensors.Bytes(lm.Bias), len(lm.Bias))
+	}
 	foldShape := func(ft FoldTable, n int) []int {
 		return []int{n / max(ft.Width*f, 1), ft.Width, f}
 	}
@@ -120,6 +140,9 @@ func (m *Model) tensors() []safetensors.Tensor {
 		}
 	}
 	add(TensorVocabIndex, "I32", safetensors.Bytes(v.index), len(v.index))
+	if lm != nil {
+		add(TensorLinearIndex, "I32", safetensors.Bytes(lm.Index), len(lm.Index))
+	}
 	for i, ft := range m.Fold {
 		if ft.F16 != nil {
 			add(FoldName(i), "F16", safetensors.Bytes(ft.F16), foldShape(ft, len(ft.F16))...)
@@ -128,6 +151,9 @@ func (m *Model) tensors() []safetensors.Tensor {
 	add(TensorVocabBytes, "U8", v.blob, len(v.blob))
 	if len(m.Baseline) > 0 {
 		add(TensorBaseline, "U8", m.Baseline, len(m.Baseline))
+	}
+	if lm != nil {
+		add(TensorLinearGrams, "U8", lm.Grams, len(lm.Grams))
 	}
 	return ts
 }
@@ -288,6 +314,9 @@ func (m *Model) Verify() error {
 		return fail(fmt.Errorf("%w: metadata says %s, data gives %s", ErrChecksum, want, got))
 	}
 	if err := m.checkLarge(); err != nil {
+		return fail(err)
+	}
+	if err := m.checkLinear(); err != nil {
 		return fail(err)
 	}
 	if err := m.checkProbes(); err != nil {

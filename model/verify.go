@@ -83,3 +83,18 @@ func (m *Model) checkBaseline() error {
 	}
 	return nil
 }
+
+// checkLinear runs the linear baseline's O(features) checks (offsets,
+// index, finite weights), which Open leaves out.
+func (m *Model) checkLinear() error {
+	if m.Linear == nil {
+		return nil
+	}
+	if m.Linear.Labels() != len(m.Labels) {
+		return formatErr(TensorLinearBias, ErrBaseline, "%d labels, the model has %d", m.Linear.Labels(), len(m.Labels))
+	}
+	if err := m.Linear.Verify(); err != nil {
+		return formatErr(TensorLinearGrams, ErrBaseline, "%v", err)
+	}
+	return nil
+}

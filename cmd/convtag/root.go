@@ -66,6 +66,7 @@ func withCode(code int, err error) error {
 type app struct {
 	stdin          io.Reader
 	stdout, stderr io.Writer
+	scorer         string // tag --scorer: applied to every model tag loads, reloads included
 }
 
 // loadModel opens the model file at path, or the built-in model when path
@@ -76,6 +77,14 @@ func (a *app) loadModel(path string) (*model.Model, error) {
 		return m, withCode(exitUsage, err)
 	}
 	m, err := model.Open(path)
+	if err == nil && a.scorer != "" {
+		var sc model.Scorer
+		if sc, err = model.ParseScorer(m, a.scorer); err != nil {
+			m.Close()
+			return nil, withCode(exitUsage, fmt.Errorf("--scorer %s: %w", a.scorer, err))
+		}
+		m.Scorer = sc
+	}
 	return m, withCode(exitUsage, err)
 }
 

@@ -360,6 +360,7 @@ a same-size overwrite would switch the model in the middle of a block.
 	f.IntVar(&o.Top, "top", 0, `add the N best labels, best first, as an array under "top" (JSON output)`)
 	f.IntVar(&why, "why", 0, `add the N word windows that weighed most for the tag, as an array under "why" (JSON output)`)
 	f.StringVar(&o.KnownKey, "known-key", "", "add each record's share of words the model knows from training under this key (JSON output)")
+	f.StringVar(&a.scorer, "scorer", "", "score with the network, the linear baseline (baseline) or their mix (combined) instead of what the model file says (train --mix-baseline stores a baseline)")
 	f.StringVar(&minConf, "min-confidence", "", "below this probability the record gets the --unsure-tag: P, or per label LABEL=P[,LABEL=P...] with an optional bare P for the rest")
 	f.StringVar(&shard, "shard", "", "tag only part K of N of one uncompressed FILE (K/N): the records starting in its K-th N-th by bytes; parts 1..N joined in order are the whole run's output")
 	f.StringVar(&thresholdsFile, "thresholds", "", "per-label minimum confidences from FILE, as written by eval --json --target-precision P (--min-confidence overrides them)")

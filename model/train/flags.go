@@ -28,5 +28,6 @@ func (r *Recipe) FlagSet() *pflag.FlagSet {
 	fl.IntVar(&r.MaxWords, "max-words", r.MaxWords, "keep at most this many words, most frequent first; 0 for all")
 	fl.IntVar(&r.Buckets, "unseen-rows", r.Buckets, "rows shared, by a hash of the word, among words with no row of their own")
 	fl.StringVar(&r.ClassWeights, "class-weights", r.ClassWeights, ClassWeightsNone+", or "+ClassWeightsBalanced+" to weight each tag's loss by n/(tags*n_tag)")
+	fl.BoolVar(&r.MixBaseline, "mix-baseline", r.MixBaseline, "also fit a logistic-regression baseline on tf-idf word pairs and tag with the mix of it and the network that does best on the dev records")
 	return fl
 }

@@ -14,6 +14,7 @@ import (
 	"strings"
 
 	"convtag/model"
+	"convtag/model/linear"
 	"convtag/model/metrics"
 	"convtag/model/nb"
 	"convtag/model/token"
@@ -74,6 +75,13 @@ type Recipe struct {
 	// NoFold leaves out the folded table; FoldHalf stores it in half
 	// precision.
 	NoFold, FoldHalf bool
+
+	// MixBaseline fits the linear baseline (logistic regression on tf-idf
+	// unigrams and bigrams, C chosen on dev), stores it, and makes the
+	// model score with the mixture of network and baseline whose weight
+	// does best on the dev records (ChooseMix), when that beats the network
+	// alone there.
+	MixBaseline bool
 
 	// The model card's words, stored in the summary.
 	Description, IntendedUse, NotFor string
@@ -170,6 +178,9 @@ type Summary struct {
 	Curve      []CurvePoint              `json:"curve"`
 	Network    Scores                    `json:"network"`
 	Baseline   BaselineScores            `json:"baseline"`
+	// Mix is the linear baseline's and the mixture's dev figures, with
+	// Recipe.MixBaseline.
+	Mix *MixScores `json:"mix,omitempty"`
 
 	// Seconds is the training time (not stored).
 	Seconds float64 `json:"-"`
@@ -398,12 +409,15 @@ func (r Recipe) Fit(ctx context.Context, trainRecs, dev []Record, p Progress) (*
 
 	netScores := Scores{DevAccuracy: res.DevAcc, DevMacroF1: res.DevMacroF1}
 	var devKnown *float64
+	var devProbs [][]float32
 	if len(dv) > 0 {
 		pr := m.NewPredictor()
 		npred := make([]int, len(dv))
 		toks, known := 0, 0
 		for i, t := range dv {
-			npred[i], _ = metrics.Predict(pr.Predict([]byte(t.text)))
+			pn := pr.Predict([]byte(t.text))
+			devProbs = append(devProbs, slices.Clone(pn))
+			npred[i], _ = metrics.Predict(pn)
 			toks += pr.TokenCount()
 			known += pr.KnownCount()
 		}
@@ -413,9 +427,31 @@ func (r Recipe) Fit(ctx context.Context, trainRecs, dev []Record, p Progress) (*
 		}
 		netScores.DevPerLabel = metrics.PerLabel(metrics.Confusion(gold, npred, len(labels)), labels)
 	}
+	var mix *MixScores
+	if r.MixBaseline && len(dv) > 0 {
+		devDocs, devY := make([][]string, len(dv)), make([]int, len(dv))
+		for i, t := range dv {
+			devDocs[i], devY[i] = t.tokens, li[t.label]
+		}
+		lm, ch, err := linear.Choose(docs, ys, devDocs, devY, len(labels), nil, linear.Options{Tolerance: 1e-6})
+		if err != nil {
+			return nil, nil, fmt.Errorf("model: linear baseline: %w", err)
+		}
+		m.Linear = lm
+		lp := lm.NewPredictor()
+		basePr := make([][]float64, len(dv))
+		for i, d := range devDocs {
+			basePr[i] = slices.Clone(lp.Probs(d))
+		}
+		mix = ChooseMix(devProbs, basePr, devY)
+		mix.LinearC = ch.C
+		m.Scorer = mix.Scorer
+		p.info("linear baseline (C %g): dev accuracy %.4f; mixture weight %g: dev accuracy %.4f; tag scores with %s",
+			ch.C, mix.Baseline, mix.Scorer.Weight, mix.Mixed, mix.Scorer)
+	}
 	sum := &Summary{
 		Description: r.Description, IntendedUse: r.IntendedUse, NotFor: r.NotFor,
-		VectorsFile: r.VectorsName, Scorer: "network", DevKnownShare: devKnown,
+		VectorsFile: r.VectorsName, Scorer: m.Scorer.String(), Mix: mix, DevKnownShare: devKnown,
 		DataSHA256: dataHash(tr, dv),
 		Records:    map[string]int{"train": len(tr), "dev": len(dv)},
 		Counts:     map[string]map[string]int{"train": countMap(tr), "dev": countMap(dv)},
