@@ -72,11 +72,13 @@ type app struct {
 // loadModel opens the model file at path, or the built-in model when path
 // is empty. A model that cannot be used is a usage-class error.
 func (a *app) loadModel(path string) (*model.Model, error) {
+	var m *model.Model
+	var err error
 	if path == "" {
-		m, err := builtin.Open()
-		return m, withCode(exitUsage, err)
+		m, err = builtin.Open()
+	} else {
+		m, err = model.Open(path)
 	}
-	m, err := model.Open(path)
 	if err == nil && a.scorer != "" {
 		var sc model.Scorer
 		if sc, err = model.ParseScorer(m, a.scorer); err != nil {

@@ -88,6 +88,9 @@ func TestTagScorer(t *testing.T) {
 	if code, _, errs := runCmd(t, in, "tag", "-m", plain, "--scorer", "combined"); code != exitUsage || !strings.Contains(errs, "linear baseline") {
 		t.Errorf("--scorer combined without a baseline: exit %d, %s", code, errs)
 	}
+	if code, _, errs := runCmd(t, in, "tag", "--scorer", "baseline"); code != exitUsage || !strings.Contains(errs, "linear baseline") {
+		t.Errorf("--scorer baseline on the built-in model: exit %d, %s", code, errs)
+	}
 	if code, _, errs := runCmd(t, in, "tag", "-m", mixed, "--scorer", "forest"); code != exitUsage || !strings.Contains(errs, "unknown scorer") {
 		t.Errorf("--scorer forest: exit %d, %s", code, errs)
 	}
